@@ -1,0 +1,157 @@
+//! Command-line definitions (clap) only; no I/O happens here.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+#[derive(Debug, Parser)]
+#[command(name = "sieveline", version, about = "Classify text records as they stream: rules for the cold start, Naive Bayes in log space, learning from reviewers' labels.")]
+pub struct Cli {
+    /// Settings file (TOML), merged over the built-in defaults.
+    #[arg(long, global = true, env = "SIEVELINE_CONFIG")]
+    pub config: Option<PathBuf>,
+    /// More log output (repeat for more).
+    #[arg(short, long, global = true, action = clap::ArgAction::Count)]
+    pub verbose: u8,
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Train a model from a labelled file (JSONL, CSV or TSV) and write a snapshot.
+    Train(TrainArgs),
+    /// Classify records from a file or stdin; decisions as JSON lines on stdout.
+    Classify(ClassifyArgs),
+    /// Evaluate on a test file, a holdout or k folds; optionally tune α by cross-validation.
+    Eval(EvalArgs),
+    /// Show what a model file holds: classes, counts, vocabulary, top terms.
+    Inspect(InspectArgs),
+}
+
+/// How to read an input file.
+#[derive(Debug, Args, Clone)]
+pub struct InputArgs {
+    /// Input format: jsonl, csv, tsv or text (default: from the extension, else jsonl).
+    #[arg(long)]
+    pub format: Option<String>,
+    /// A text field and its weight, NAME or NAME=WEIGHT; repeat for several. Replaces input.fields.
+    #[arg(long = "field", value_name = "NAME[=WEIGHT]")]
+    pub fields: Vec<String>,
+    /// The label field (default: input.label_field).
+    #[arg(long)]
+    pub label_field: Option<String>,
+    /// The id field (default: input.id_field).
+    #[arg(long)]
+    pub id_field: Option<String>,
+    /// CSV/TSV files have no header row; fields are then column numbers from 0.
+    #[arg(long)]
+    pub no_header: bool,
+    /// Stop at the first malformed row instead of reporting and skipping it.
+    #[arg(long)]
+    pub strict: bool,
+}
+
+/// Model hyper-parameters that override [model] settings.
+#[derive(Debug, Args, Clone)]
+pub struct ModelArgs {
+    /// Lidstone smoothing α.
+    #[arg(long)]
+    pub alpha: Option<f64>,
+    /// multinomial or complement.
+    #[arg(long)]
+    pub kind: Option<String>,
+    /// learned, uniform or given.
+    #[arg(long)]
+    pub priors: Option<String>,
+}
+
+#[derive(Debug, Args)]
+pub struct TrainArgs {
+    /// Labelled input file, or - for stdin.
+    #[arg(long, short)]
+    pub input: PathBuf,
+    /// Where to write the model snapshot.
+    #[arg(long, short)]
+    pub out: PathBuf,
+    #[command(flatten)]
+    pub io: InputArgs,
+    #[command(flatten)]
+    pub model: ModelArgs,
+    /// A version string stored in the model (default: date and count fingerprint).
+    #[arg(long)]
+    pub model_version: Option<String>,
+    /// Also write the per-record term-count matrix as JSON (for reference checks).
+    #[arg(long, value_name = "FILE")]
+    pub dump_counts: Option<PathBuf>,
+}
+
+#[derive(Debug, Args)]
+pub struct ClassifyArgs {
+    /// Model snapshot to score with.
+    #[arg(long, short)]
+    pub model: PathBuf,
+    /// Records to classify (default: stdin).
+    #[arg(long, short, default_value = "-")]
+    pub input: PathBuf,
+    #[command(flatten)]
+    pub io: InputArgs,
+    /// Add the joint log likelihood per class and the known terms to each decision.
+    #[arg(long)]
+    pub scores: bool,
+    /// Echo the original record in each decision.
+    #[arg(long)]
+    pub echo: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct EvalArgs {
+    /// Labelled training file.
+    #[arg(long, short)]
+    pub input: PathBuf,
+    /// A separate labelled test file.
+    #[arg(long, conflicts_with_all = ["holdout", "holdout_rows"])]
+    pub test: Option<PathBuf>,
+    /// Hold out this stratified, seeded fraction of the input as test data.
+    #[arg(long, conflicts_with = "holdout_rows")]
+    pub holdout: Option<f64>,
+    /// Hold out rows whose 0-based index i has i % N == R, given as N:R.
+    #[arg(long, value_name = "N:R")]
+    pub holdout_rows: Option<String>,
+    /// Number of folds for cross-validation (tuning, or the whole evaluation without a test set).
+    #[arg(long, default_value_t = 5)]
+    pub folds: usize,
+    /// shuffled (seeded, within class) or contiguous (file order within class).
+    #[arg(long, default_value = "shuffled")]
+    pub fold_order: String,
+    #[arg(long, default_value_t = 42)]
+    pub seed: u64,
+    /// Tune α over this comma-separated list by k-fold on the training data only.
+    #[arg(long, value_delimiter = ',')]
+    pub alpha_grid: Vec<f64>,
+    /// Tune the model kind too: comma-separated multinomial,complement.
+    #[arg(long, value_delimiter = ',')]
+    pub kind_grid: Vec<String>,
+    /// accuracy or macro_f1.
+    #[arg(long, default_value = "accuracy")]
+    pub tune_metric: String,
+    #[command(flatten)]
+    pub io: InputArgs,
+    #[command(flatten)]
+    pub model: ModelArgs,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct InspectArgs {
+    /// Model snapshot.
+    #[arg(long, short)]
+    pub model: PathBuf,
+    /// Top terms per class.
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+    #[arg(long)]
+    pub json: bool,
+}

@@ -1,0 +1,475 @@
+//! Settings: the embedded defaults, an optional TOML file and `SIEVELINE__` environment overrides, validated once into one `Settings` value.
+//!
+//! Layering, lowest first: `config/default.toml` (compiled in), the file given
+//! with `--config`, then environment variables named
+//! `SIEVELINE__SECTION__KEY` (double underscores separate levels). Unknown
+//! keys are errors. Every value is checked here, once; the rest of the program
+//! trusts a `Settings` it is handed and never reads the environment itself.
+
+use std::collections::BTreeMap;
+use std::path::Path;
+
+use config::{Config, Environment, File, FileFormat};
+use serde::{Deserialize, Serialize};
+
+use crate::error::SettingsError;
+
+/// The compiled-in defaults; the same text as `config/default.toml`.
+pub const DEFAULT_TOML: &str = include_str!("../config/default.toml");
+
+/// Environment variable prefix for overrides, e.g. `SIEVELINE__MODEL__ALPHA=0.3`.
+pub const ENV_PREFIX: &str = "SIEVELINE";
+/// Separator between the prefix and the key, and between nested keys.
+pub const ENV_SEPARATOR: &str = "__";
+
+/// Field weights and label weights must be multiples of this, so sums of
+/// weighted counts are exact in f64 whatever the order of learning.
+pub const WEIGHT_QUANTUM: f64 = 1.0 / 16.0;
+/// The largest accepted weight.
+pub const MAX_WEIGHT: f64 = 64.0;
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Settings {
+    pub analyzer: AnalyzerSettings,
+    pub input: InputSettings,
+    pub model: ModelSettings,
+    pub review: ReviewSettings,
+    pub train: TrainSettings,
+}
+
+/// Everything that changes which terms a record yields. Its fingerprint goes
+/// into every model, and a model built with other analyzer settings is refused.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AnalyzerSettings {
+    pub lowercase: bool,
+    pub min_token_len: usize,
+    pub max_token_len: usize,
+    pub bigrams: bool,
+    pub stop_words: bool,
+    pub collapse: CollapseSettings,
+    #[serde(default)]
+    pub patterns: Vec<PatternSetting>,
+}
+
+/// One switch per built-in collapsing family.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CollapseSettings {
+    pub numbers: bool,
+    pub hex_ids: bool,
+    pub uuids: bool,
+    pub ip_addresses: bool,
+    pub emails: bool,
+    pub urls: bool,
+    pub paths: bool,
+    pub timestamps: bool,
+}
+
+impl CollapseSettings {
+    pub fn all(on: bool) -> Self {
+        CollapseSettings {
+            numbers: on,
+            hex_ids: on,
+            uuids: on,
+            ip_addresses: on,
+            emails: on,
+            urls: on,
+            paths: on,
+            timestamps: on,
+        }
+    }
+}
+
+/// A user-defined collapsing pattern: every match becomes the token `<name>`.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PatternSetting {
+    pub name: String,
+    pub regex: String,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InputSettings {
+    pub id_field: String,
+    pub label_field: String,
+    pub max_record_bytes: usize,
+    pub fields: Vec<FieldSetting>,
+}
+
+/// A text field of a record and the weight of each of its terms.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FieldSetting {
+    pub name: String,
+    pub weight: f64,
+}
+
+/// A settings enum written as one of a fixed set of strings; an unknown
+/// string is refused with the list of allowed ones.
+macro_rules! choice_enum {
+    ($(#[$doc:meta])* $name:ident { $($variant:ident => $text:literal),+ $(,)? }) => {
+        $(#[$doc])*
+        #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
+        pub enum $name { $($variant),+ }
+
+        impl $name {
+            pub const ALLOWED: &'static [&'static str] = &[$($text),+];
+            pub fn as_str(&self) -> &'static str {
+                match self { $($name::$variant => $text),+ }
+            }
+        }
+
+        impl std::str::FromStr for $name {
+            type Err = String;
+            fn from_str(s: &str) -> Result<Self, String> {
+                match s {
+                    $($text => Ok($name::$variant),)+
+                    other => Err(format!("{other:?} is not allowed: expected one of {}", Self::ALLOWED.join(", "))),
+                }
+            }
+        }
+
+        impl Serialize for $name {
+            fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+                s.serialize_str(self.as_str())
+            }
+        }
+
+        impl<'de> Deserialize<'de> for $name {
+            fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Self, D::Error> {
+                let s = String::deserialize(d)?;
+                s.parse().map_err(serde::de::Error::custom)
+            }
+        }
+    };
+}
+
+choice_enum!(
+    /// Multinomial Naive Bayes, or its complement form.
+    ModelKind { Multinomial => "multinomial", Complement => "complement" }
+);
+choice_enum!(
+    /// Where class priors come from.
+    PriorKind { Learned => "learned", Uniform => "uniform", Given => "given" }
+);
+choice_enum!(
+    /// Exact interned vocabulary, or feature hashing into fixed buckets.
+    VocabularyKind { Interned => "interned", Hashed => "hashed" }
+);
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ModelSettings {
+    pub kind: ModelKind,
+    pub alpha: f64,
+    pub priors: PriorKind,
+    pub given_priors: BTreeMap<String, f64>,
+    pub vocabulary: VocabularyKind,
+    pub max_vocabulary: usize,
+    pub hash_buckets: usize,
+    pub explain_terms: usize,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ReviewSettings {
+    pub min_confidence: f64,
+    pub min_margin: f64,
+    pub class_min_confidence: BTreeMap<String, f64>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TrainSettings {
+    pub progress_min_rows: usize,
+}
+
+impl Settings {
+    /// Defaults, then `file` (if any), then the process environment.
+    pub fn load(file: Option<&Path>) -> Result<Settings, SettingsError> {
+        Self::load_with_env(file, std::env::vars())
+    }
+
+    /// As `load`, with an explicit environment (for tests).
+    pub fn load_with_env(
+        file: Option<&Path>,
+        env: impl IntoIterator<Item = (String, String)>,
+    ) -> Result<Settings, SettingsError> {
+        let mut builder = Config::builder();
+        match file {
+            None => builder = builder.add_source(File::from_str(DEFAULT_TOML, FileFormat::Toml)),
+            Some(path) => {
+                let text = std::fs::read_to_string(path).map_err(|e| SettingsError::Read {
+                    path: path.display().to_string(),
+                    reason: e.to_string(),
+                })?;
+                // Parse on our own first so a syntax error names the file and line.
+                let user: toml::Value = toml::from_str(&text).map_err(|e| SettingsError::Syntax {
+                    path: path.display().to_string(),
+                    reason: e.to_string(),
+                })?;
+                // An array of tables in the user file replaces the default array
+                // whole; the config crate would otherwise merge it index by index.
+                let base = if user.get("input").and_then(|i| i.get("fields")).is_some() {
+                    defaults_without_fields()
+                } else {
+                    DEFAULT_TOML.to_string()
+                };
+                builder = builder
+                    .add_source(File::from_str(&base, FileFormat::Toml))
+                    .add_source(File::from_str(&text, FileFormat::Toml));
+            }
+        }
+        let env_map: config::Map<String, String> = env
+            .into_iter()
+            .filter(|(k, _)| k.starts_with(&format!("{ENV_PREFIX}{ENV_SEPARATOR}")))
+            .collect();
+        builder = builder.add_source(
+            Environment::with_prefix(ENV_PREFIX)
+                .prefix_separator(ENV_SEPARATOR)
+                .separator(ENV_SEPARATOR)
+                .try_parsing(true)
+                .source(Some(env_map)),
+        );
+        let cfg = builder.build().map_err(|e| SettingsError::Merge(e.to_string()))?;
+        let raw: Settings = cfg.try_deserialize().map_err(|e| SettingsError::Shape(e.to_string()))?;
+        raw.validate()?;
+        Ok(raw)
+    }
+
+    /// Parse one TOML text over the defaults, without the environment (for tests and tools).
+    pub fn from_toml_str(text: &str) -> Result<Settings, SettingsError> {
+        let dir = std::env::temp_dir().join(format!("sieveline-settings-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).map_err(|e| SettingsError::Read {
+            path: dir.display().to_string(),
+            reason: e.to_string(),
+        })?;
+        let path = dir.join(format!("s{}.toml", unique_suffix()));
+        std::fs::write(&path, text).map_err(|e| SettingsError::Read {
+            path: path.display().to_string(),
+            reason: e.to_string(),
+        })?;
+        let out = Self::load_with_env(Some(&path), std::iter::empty());
+        let _ = std::fs::remove_file(&path);
+        out
+    }
+
+    /// The defaults alone.
+    pub fn defaults() -> Settings {
+        Self::load_with_env(None, std::iter::empty()).expect("embedded defaults are valid")
+    }
+
+    /// Check every value once; the error names the key, the value and what is allowed.
+    pub fn validate(&self) -> Result<(), SettingsError> {
+        let a = &self.analyzer;
+        if a.min_token_len == 0 || a.min_token_len > a.max_token_len {
+            return Err(invalid(
+                "analyzer.min_token_len",
+                a.min_token_len,
+                "an integer from 1 to analyzer.max_token_len",
+            ));
+        }
+        if a.max_token_len == 0 || a.max_token_len > 1024 {
+            return Err(invalid("analyzer.max_token_len", a.max_token_len, "an integer from 1 to 1024"));
+        }
+        let mut names = std::collections::BTreeSet::new();
+        for (i, p) in a.patterns.iter().enumerate() {
+            let key = format!("analyzer.patterns[{i}].name");
+            if p.name.is_empty()
+                || !p.name.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_')
+            {
+                return Err(invalid(&key, &p.name, "a non-empty name of a-z, 0-9 and _"));
+            }
+            if !names.insert(p.name.clone()) {
+                return Err(invalid(&key, &p.name, "a name not used by another pattern"));
+            }
+            if let Err(e) = regex::Regex::new(&p.regex) {
+                return Err(invalid(
+                    &format!("analyzer.patterns[{i}].regex"),
+                    &p.regex,
+                    &format!("a valid regular expression ({})", first_line(&e.to_string())),
+                ));
+            }
+        }
+        let inp = &self.input;
+        if inp.id_field.is_empty() {
+            return Err(invalid("input.id_field", "", "a non-empty field path"));
+        }
+        if inp.label_field.is_empty() {
+            return Err(invalid("input.label_field", "", "a non-empty field path"));
+        }
+        if inp.max_record_bytes < 16 {
+            return Err(invalid("input.max_record_bytes", inp.max_record_bytes, "at least 16"));
+        }
+        if inp.fields.is_empty() {
+            return Err(invalid("input.fields", "[]", "at least one text field"));
+        }
+        for (i, f) in inp.fields.iter().enumerate() {
+            if f.name.is_empty() {
+                return Err(invalid(&format!("input.fields[{i}].name"), "", "a non-empty field path"));
+            }
+            check_weight(&format!("input.fields[{i}].weight"), f.weight)?;
+        }
+        let m = &self.model;
+        if !(m.alpha.is_finite() && m.alpha >= 1e-10 && m.alpha <= 1e6) {
+            return Err(invalid("model.alpha", m.alpha, "a number from 1e-10 to 1e6"));
+        }
+        if m.priors == PriorKind::Given {
+            if m.given_priors.is_empty() {
+                return Err(invalid(
+                    "model.given_priors",
+                    "{}",
+                    "at least one class -> probability when model.priors = \"given\"",
+                ));
+            }
+            for (class, p) in &m.given_priors {
+                if !(p.is_finite() && *p > 0.0 && *p <= 1.0) {
+                    return Err(invalid(&format!("model.given_priors.{class}"), p, "a probability in (0, 1]"));
+                }
+            }
+        }
+        if m.max_vocabulary == 0 || m.max_vocabulary > u32::MAX as usize - 1 {
+            return Err(invalid("model.max_vocabulary", m.max_vocabulary, "an integer from 1 to 4294967294"));
+        }
+        if m.hash_buckets == 0 || m.hash_buckets > (1 << 28) {
+            return Err(invalid("model.hash_buckets", m.hash_buckets, "an integer from 1 to 268435456"));
+        }
+        if m.explain_terms > 64 {
+            return Err(invalid("model.explain_terms", m.explain_terms, "an integer from 0 to 64"));
+        }
+        let r = &self.review;
+        if !(0.0..=1.0).contains(&r.min_confidence) {
+            return Err(invalid("review.min_confidence", r.min_confidence, "a number from 0 to 1"));
+        }
+        if !(r.min_margin.is_finite() && r.min_margin >= 0.0) {
+            return Err(invalid("review.min_margin", r.min_margin, "a number >= 0"));
+        }
+        for (class, t) in &r.class_min_confidence {
+            if !(0.0..=1.0).contains(t) {
+                return Err(invalid(&format!("review.class_min_confidence.{class}"), t, "a number from 0 to 1"));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// A weight is positive, at most `MAX_WEIGHT`, and a multiple of `WEIGHT_QUANTUM`.
+pub fn check_weight(key: &str, w: f64) -> Result<(), SettingsError> {
+    let q = w / WEIGHT_QUANTUM;
+    if !(w.is_finite() && w >= WEIGHT_QUANTUM && w <= MAX_WEIGHT && q == q.round()) {
+        return Err(invalid(
+            key,
+            w,
+            "a multiple of 1/16 (0.0625) from 0.0625 to 64, so learned counts stay exact",
+        ));
+    }
+    Ok(())
+}
+
+fn invalid(key: &str, value: impl std::fmt::Display, allowed: &str) -> SettingsError {
+    SettingsError::Invalid { key: key.to_string(), value: value.to_string(), allowed: allowed.to_string() }
+}
+
+fn first_line(s: &str) -> String {
+    s.lines().filter(|l| !l.trim().is_empty()).last().unwrap_or("").trim().to_string()
+}
+
+fn defaults_without_fields() -> String {
+    let mut v: toml::Value = toml::from_str(DEFAULT_TOML).expect("embedded defaults parse");
+    if let Some(input) = v.get_mut("input").and_then(|i| i.as_table_mut()) {
+        input.remove("fields");
+    }
+    toml::to_string(&v).expect("defaults serialize")
+}
+
+fn unique_suffix() -> u64 {
+    use std::sync::atomic::{AtomicU64, Ordering};
+    static N: AtomicU64 = AtomicU64::new(0);
+    N.fetch_add(1, Ordering::Relaxed)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn env(pairs: &[(&str, &str)]) -> Vec<(String, String)> {
+        pairs.iter().map(|(k, v)| (k.to_string(), v.to_string())).collect()
+    }
+
+    #[test]
+    fn defaults_load_and_validate() {
+        let s = Settings::defaults();
+        assert_eq!(s.model.alpha, 1.0);
+        assert_eq!(s.input.fields.len(), 3);
+        assert_eq!(s.input.fields[0].weight, 2.0);
+        assert!(s.analyzer.collapse.numbers);
+    }
+
+    #[test]
+    fn env_override_reaches_nested_key() {
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__MODEL__ALPHA", "0.25")])).unwrap();
+        assert_eq!(s.model.alpha, 0.25);
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__ANALYZER__BIGRAMS", "true")])).unwrap();
+        assert!(s.analyzer.bigrams);
+    }
+
+    #[test]
+    fn unrelated_env_vars_with_similar_names_are_not_read() {
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE_DATA_DIR", "/x")])).unwrap();
+        assert_eq!(s, Settings::defaults());
+    }
+
+    #[test]
+    fn typo_in_env_key_is_an_error() {
+        let e = Settings::load_with_env(None, env(&[("SIEVELINE__MODEL__ALHPA", "0.5")])).unwrap_err();
+        let msg = e.to_string();
+        assert!(msg.contains("alhpa"), "{msg}");
+    }
+
+    #[test]
+    fn typo_in_file_key_is_an_error_naming_it() {
+        let e = Settings::from_toml_str("[model]\nalpah = 0.5\n").unwrap_err().to_string();
+        assert!(e.contains("alpah"), "{e}");
+        let e = Settings::from_toml_str("[modle]\nalpha = 0.5\n").unwrap_err().to_string();
+        assert!(e.contains("modle"), "{e}");
+    }
+
+    #[test]
+    fn bad_value_names_key_value_and_allowed() {
+        let e = Settings::from_toml_str("[model]\nalpha = -1.0\n").unwrap_err().to_string();
+        assert!(e.contains("model.alpha") && e.contains("-1") && e.contains("1e-10"), "{e}");
+        let e = Settings::from_toml_str("[model]\nkind = \"bernoulli\"\n").unwrap_err().to_string();
+        assert!(e.contains("bernoulli") && e.contains("multinomial"), "{e}");
+    }
+
+    #[test]
+    fn non_dyadic_weight_is_refused() {
+        let e = Settings::from_toml_str("[[input.fields]]\nname = \"body\"\nweight = 0.3\n")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("input.fields[0].weight") && e.contains("0.3") && e.contains("1/16"), "{e}");
+    }
+
+    #[test]
+    fn user_fields_replace_default_fields_whole() {
+        let s = Settings::from_toml_str("[[input.fields]]\nname = \"message\"\nweight = 1.5\n").unwrap();
+        assert_eq!(s.input.fields, vec![FieldSetting { name: "message".into(), weight: 1.5 }]);
+    }
+
+    #[test]
+    fn bad_pattern_regex_is_refused() {
+        let e = Settings::from_toml_str("[[analyzer.patterns]]\nname = \"order_no\"\nregex = \"(\"\n")
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("analyzer.patterns[0].regex"), "{e}");
+    }
+
+    #[test]
+    fn syntax_error_names_the_file() {
+        let e = Settings::from_toml_str("[model\n").unwrap_err().to_string();
+        assert!(e.contains(".toml"), "{e}");
+    }
+}
