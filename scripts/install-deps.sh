@@ -1,0 +1,15 @@
+#!/usr/bin/env bash
+# Installs the Debian packages the build and the tests need, only those missing. Idempotent; needs root (or sudo).
+set -euo pipefail
+pkgs=(pkg-config libssl-dev make gcc g++ python3-venv)
+missing=()
+for p in "${pkgs[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || missing+=("$p")
+done
+if [ ${#missing[@]} -gt 0 ]; then
+  echo "install-deps: installing ${missing[*]}" >&2
+  sudo_cmd=""
+  [ "$(id -u)" = 0 ] || sudo_cmd="sudo"
+  $sudo_cmd apt-get update -qq >&2
+  DEBIAN_FRONTEND=noninteractive $sudo_cmd apt-get install -y -qq "${missing[@]}" >&2
+fi
