@@ -25,8 +25,8 @@ pub struct TokenConfig {
 }
 
 #[inline]
-fn is_hard_separator(c: char) -> bool {
-    matches!(c, '=' | ',' | ';' | '"' | '\'' | '(' | ')' | '[' | ']' | '{' | '}' | '<' | '>' | '|' | '`')
+const fn is_separator_byte(b: u8) -> bool {
+    matches!(b, b'=' | b',' | b';' | b'"' | b'\'' | b'(' | b')' | b'[' | b']' | b'{' | b'}' | b'<' | b'>' | b'|' | b'`')
 }
 
 #[inline]
@@ -34,31 +34,170 @@ fn is_word_char(c: char) -> bool {
     c.is_alphanumeric() || c == '_'
 }
 
+/// Trailing sentence punctuation and leading list markers off (ASCII bytes, so
+/// slicing at them is always on a char boundary).
 #[inline]
 fn trim_punct(s: &str) -> &str {
-    s.trim_end_matches(['.', ':', '!', '?', ',', ';']).trim_start_matches(['*', '#'])
+    let b = s.as_bytes();
+    let mut end = b.len();
+    while end > 0 && matches!(b[end - 1], b'.' | b':' | b'!' | b'?' | b',' | b';') {
+        end -= 1;
+    }
+    let mut start = 0;
+    while start < end && matches!(b[start], b'*' | b'#') {
+        start += 1;
+    }
+    &s[start..end]
+}
+
+/// Separators and sentence punctuation off both ends, for the URL test.
+#[inline]
+fn trim_for_url(s: &str) -> &str {
+    let b = s.as_bytes();
+    let strip = |c: u8| is_separator_byte(c) || matches!(c, b'.' | b':' | b'!' | b'?');
+    let mut end = b.len();
+    while end > 0 && strip(b[end - 1]) {
+        end -= 1;
+    }
+    let mut start = 0;
+    while start < end && strip(b[start]) {
+        start += 1;
+    }
+    &s[start..end]
 }
 
 /// Call `emit` with every token of `text`, in order.
 #[inline]
 pub fn for_each_token<F: FnMut(&str)>(text: &str, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    if text.is_ascii() {
+        ascii_tokens(text, cfg, lower, emit);
+        return;
+    }
     for chunk in text.split(char::is_whitespace) {
-        if chunk.is_empty() {
-            continue;
-        }
-        let trimmed = chunk.trim_matches(|c: char| is_hard_separator(c) || matches!(c, '.' | ':' | '!' | '?'));
-        if cfg.collapse.urls && collapse::url::matches(trimmed.as_bytes()) {
-            emit(collapse::URL);
-            continue;
-        }
-        if chunk.contains(is_hard_separator) {
-            for part in chunk.split(is_hard_separator) {
-                part_tokens(part, cfg, lower, emit);
-            }
-        } else {
-            part_tokens(chunk, cfg, lower, emit);
+        if !chunk.is_empty() {
+            chunk_tokens(chunk, cfg, lower, emit);
         }
     }
+}
+
+/// Byte classes for the ASCII fast path.
+const WORD: u8 = 1;
+const SPECIAL: u8 = 2; // a byte that may start a collapsible family or a separator
+const SPACE: u8 = 4;
+const SEP: u8 = 8; // a hard separator
+
+const fn byte_classes() -> [u8; 256] {
+    let mut t = [SPECIAL; 256];
+    let mut c = 0;
+    while c < 256 {
+        let b = c as u8;
+        t[c] = if b.is_ascii_lowercase() || b.is_ascii_uppercase() || b == b'_' {
+            WORD
+        } else if b.is_ascii_digit() {
+            WORD | SPECIAL
+        } else if b == b' ' || b == b'\t' || b == b'\n' || b == b'\r' || b == 0x0b || b == 0x0c {
+            SPACE
+        } else if matches!(b, b'.' | b'!' | b'?' | b'-' | b'+' | b'*' | b'#' | b'&' | b'~' | b'$' | b'^') {
+            0
+        } else if is_separator_byte(b) {
+            SPECIAL | SEP
+        } else {
+            SPECIAL
+        };
+        c += 1;
+    }
+    t
+}
+
+static CLASSES: [u8; 256] = byte_classes();
+
+/// ASCII text: one pass finds each whitespace chunk and whether anything in it
+/// could be collapsible (a digit, `@`, `:`, `/`, `\\`, a hard separator...).
+/// Chunks of plain words and sentence punctuation skip every family test.
+#[inline]
+fn ascii_tokens<F: FnMut(&str)>(text: &str, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    let b = text.as_bytes();
+    let n = b.len();
+    let mut i = 0;
+    while i < n {
+        while i < n && CLASSES[b[i] as usize] & SPACE != 0 {
+            i += 1;
+        }
+        let start = i;
+        let mut flags = 0u8;
+        while i < n && CLASSES[b[i] as usize] & SPACE == 0 {
+            flags |= CLASSES[b[i] as usize];
+            i += 1;
+        }
+        if start == i {
+            break;
+        }
+        let chunk = &text[start..i];
+        let plain = flags & SPECIAL == 0
+            && !(chunk.len() > 4 && chunk.as_bytes()[..4].eq_ignore_ascii_case(b"www."))
+            && !(chunk.len() == 36 && cfg.collapse.uuids);
+        if plain {
+            plain_words(chunk, cfg, lower, emit);
+        } else {
+            chunk_tokens(chunk, cfg, lower, emit);
+        }
+    }
+}
+
+/// Letters, `_` and sentence punctuation only: split into words, fold, filter.
+#[inline]
+fn plain_words<F: FnMut(&str)>(chunk: &str, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    let b = chunk.as_bytes();
+    let mut i = 0;
+    while i < b.len() {
+        while i < b.len() && CLASSES[b[i] as usize] & WORD == 0 {
+            i += 1;
+        }
+        let s = i;
+        while i < b.len() && CLASSES[b[i] as usize] & WORD != 0 {
+            i += 1;
+        }
+        if s < i {
+            word(&chunk[s..i], i - s, cfg, lower, emit);
+        }
+    }
+}
+
+/// A word piece no family claimed: length limits, folding, stop words.
+#[inline]
+fn word<F: FnMut(&str)>(piece: &str, chars: usize, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    if chars < cfg.min_len || chars > cfg.max_len {
+        return;
+    }
+    let w = if cfg.lowercase { fold_into(piece, lower) } else { piece };
+    if let Some(stop) = cfg.stop_words {
+        if stop.contains(w) {
+            return;
+        }
+    }
+    emit(w);
+}
+
+/// The general path for one whitespace chunk.
+#[inline]
+fn chunk_tokens<F: FnMut(&str)>(chunk: &str, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    if cfg.collapse.urls && collapse::url::matches(trim_for_url(chunk).as_bytes()) {
+        emit(collapse::URL);
+        return;
+    }
+    let b = chunk.as_bytes();
+    if !b.iter().any(|&c| is_separator_byte(c)) {
+        part_tokens(chunk, cfg, lower, emit);
+        return;
+    }
+    let mut at = 0;
+    for (i, &c) in b.iter().enumerate() {
+        if is_separator_byte(c) {
+            part_tokens(&chunk[at..i], cfg, lower, emit);
+            at = i + 1;
+        }
+    }
+    part_tokens(&chunk[at..], cfg, lower, emit);
 }
 
 #[inline]
@@ -71,25 +210,36 @@ fn part_tokens<F: FnMut(&str)>(part: &str, cfg: &TokenConfig, lower: &mut String
         emit(tok);
         return;
     }
-    for piece in part.split(|c: char| !is_word_char(c)) {
-        if piece.is_empty() {
-            continue;
-        }
-        if let Some(tok) = classify_piece(piece, &cfg.collapse) {
-            emit(tok);
-            continue;
-        }
-        let n = if piece.is_ascii() { piece.len() } else { piece.chars().count() };
-        if n < cfg.min_len || n > cfg.max_len {
-            continue;
-        }
-        let word = if cfg.lowercase { fold_into(piece, lower) } else { piece };
-        if let Some(stop) = cfg.stop_words {
-            if stop.contains(word) {
-                continue;
+    if part.is_ascii() {
+        let b = part.as_bytes();
+        let mut i = 0;
+        while i < b.len() {
+            while i < b.len() && CLASSES[b[i] as usize] & WORD == 0 {
+                i += 1;
+            }
+            let s = i;
+            while i < b.len() && CLASSES[b[i] as usize] & WORD != 0 {
+                i += 1;
+            }
+            if s < i {
+                piece_token(&part[s..i], i - s, cfg, lower, emit);
             }
         }
-        emit(word);
+        return;
+    }
+    for piece in part.split(|c: char| !is_word_char(c)) {
+        if !piece.is_empty() {
+            let n = if piece.is_ascii() { piece.len() } else { piece.chars().count() };
+            piece_token(piece, n, cfg, lower, emit);
+        }
+    }
+}
+
+#[inline]
+fn piece_token<F: FnMut(&str)>(piece: &str, chars: usize, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    match classify_piece(piece, &cfg.collapse) {
+        Some(tok) => emit(tok),
+        None => word(piece, chars, cfg, lower, emit),
     }
 }
 
@@ -142,6 +292,26 @@ mod tests {
     #[test]
     fn unicode_words() {
         assert_eq!(toks("Überweisung fehlgeschlagen — naïve café", &cfg()), ["überweisung", "fehlgeschlagen", "naïve", "café"]);
+    }
+
+    #[test]
+    fn ascii_fast_path_equals_the_general_path() {
+        // Random ASCII soup heavy in the bytes that matter; both paths must agree exactly.
+        let alphabet = b"abcXYZ_019 .,:;!?-+*#@/\\=()[]<>'\"|~%&\twww0x";
+        let mut rng = crate::eval::folds::SplitMix64::new(11);
+        let c = cfg();
+        for _ in 0..20_000 {
+            let len = rng.below(40) as usize;
+            let s: String = (0..len).map(|_| alphabet[rng.below(alphabet.len() as u64) as usize] as char).collect();
+            let mut fast = Vec::new();
+            let mut buf = String::new();
+            ascii_tokens(&s, &c, &mut buf, &mut |t| fast.push(t.to_string()));
+            let mut slow = Vec::new();
+            for chunk in s.split(char::is_whitespace).filter(|c| !c.is_empty()) {
+                chunk_tokens(chunk, &c, &mut buf, &mut |t| slow.push(t.to_string()));
+            }
+            assert_eq!(fast, slow, "{s:?}");
+        }
     }
 
     #[test]

@@ -41,13 +41,12 @@ pub fn is_ipv6(b: &[u8]) -> bool {
         return false;
     }
     let mut groups = 0;
-    let parts: Vec<&[u8]> = core.split(|&c| c == b':').collect();
-    let n = parts.len();
-    for (i, g) in parts.iter().enumerate() {
+    let last = core.iter().filter(|&&c| c == b':').count();
+    for (i, g) in core.split(|&c| c == b':').enumerate() {
         if g.is_empty() {
             continue;
         }
-        if i == n - 1 && g.contains(&b'.') {
+        if i == last && g.contains(&b'.') {
             if !is_ipv4(g) {
                 return false;
             }

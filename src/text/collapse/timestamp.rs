@@ -73,9 +73,9 @@ fn time(b: &[u8]) -> bool {
 fn zone(r: &[u8]) -> bool {
     match r {
         [] | [b'Z'] | [b'z'] => true,
-        [b'+' | b'-', rest @ ..] => {
-            let rest: Vec<u8> = rest.iter().copied().filter(|&c| c != b':').collect();
-            (rest.len() == 2 || rest.len() == 4) && rest.iter().all(u8::is_ascii_digit)
+        [b'+' | b'-', h1, h2] => h1.is_ascii_digit() && h2.is_ascii_digit(),
+        [b'+' | b'-', h1, h2, b':', m1, m2] | [b'+' | b'-', h1, h2, m1, m2] => {
+            [h1, h2, m1, m2].iter().all(|c| c.is_ascii_digit())
         }
         _ => false,
     }

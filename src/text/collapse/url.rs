@@ -5,16 +5,15 @@ pub fn matches(b: &[u8]) -> bool {
     if b.len() > 4 && b[..4].eq_ignore_ascii_case(b"www.") {
         return b[4..].iter().any(|c| c.is_ascii_alphanumeric()) && b[4..].contains(&b'.');
     }
-    let Some(pos) = find(b, b"://") else { return false };
+    let Some(pos) = b.iter().position(|&c| c == b':') else { return false };
+    if b.get(pos + 1) != Some(&b'/') || b.get(pos + 2) != Some(&b'/') {
+        return false;
+    }
     if pos == 0 || pos > 16 || !b[0].is_ascii_alphabetic() {
         return false;
     }
     let scheme_ok = b[..pos].iter().all(|c| c.is_ascii_alphanumeric() || matches!(c, b'+' | b'-' | b'.'));
     scheme_ok && b.len() > pos + 3
-}
-
-fn find(hay: &[u8], needle: &[u8]) -> Option<usize> {
-    hay.windows(needle.len()).position(|w| w == needle)
 }
 
 #[cfg(test)]
