@@ -27,6 +27,10 @@ pub enum Command {
     Eval(EvalArgs),
     /// Show what a model file holds: classes, counts, vocabulary, top terms.
     Inspect(InspectArgs),
+    /// Run the streaming service: consume, score, route, review and dead-letter (see docs/service.md).
+    Run(RunArgs),
+    /// Measure the service end to end through a Kafka broker beside a pass-through copy.
+    BenchStream(BenchStreamArgs),
 }
 
 /// How to read an input file.
@@ -152,6 +156,44 @@ pub struct InspectArgs {
     /// Top terms per class.
     #[arg(long, default_value_t = 10)]
     pub top: usize,
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct RunArgs {
+    /// Model snapshot to serve (overrides service.model).
+    #[arg(long, short)]
+    pub model: Option<PathBuf>,
+    /// Read records from this file instead of the configured source (sets source.kind = "file").
+    #[arg(long, short)]
+    pub input: Option<PathBuf>,
+}
+
+#[derive(Debug, Args)]
+pub struct BenchStreamArgs {
+    /// Bootstrap brokers (default: $SIEVELINE_TEST_BROKERS, else kafka.bootstrap_servers).
+    #[arg(long)]
+    pub brokers: Option<String>,
+    /// Records for the throughput runs.
+    #[arg(long, default_value_t = 1_000_000)]
+    pub records: usize,
+    /// Bytes per generated log line.
+    #[arg(long, default_value_t = 120)]
+    pub record_bytes: usize,
+    /// Input partitions.
+    #[arg(long, default_value_t = 4)]
+    pub partitions: i32,
+    /// Offered rate of the latency run, records/s.
+    #[arg(long, default_value_t = 20_000)]
+    pub rate: u64,
+    /// Length of the latency run, seconds.
+    #[arg(long, default_value_t = 15)]
+    pub latency_secs: u64,
+    /// Repeat each throughput run this many times and report medians.
+    #[arg(long, default_value_t = 3)]
+    pub repeats: usize,
+    /// Print the report as JSON.
     #[arg(long)]
     pub json: bool,
 }

@@ -8,9 +8,12 @@
 //! - [`decide`]: scores → `Decision`, the review policy;
 //! - [`eval`]: metrics, folds, cross-validated tuning, reports;
 //! - [`io`]: record codecs and file readers (offline and streaming edges);
+//! - [`runtime`]: the service — pipeline, offset watermarks, acks, model view seam, shutdown;
+//! - [`admin`]: the admin HTTP endpoint; [`metrics`]: every metric name in one place;
 //! - [`commands`]: one file per subcommand; [`cli`]: the flag definitions;
 //! - [`error`]: typed errors per layer; [`clock`]: timestamps for metadata only.
 
+pub mod admin;
 pub mod cli;
 pub mod clock;
 pub mod commands;
@@ -19,6 +22,8 @@ pub mod error;
 pub mod eval;
 pub mod features;
 pub mod io;
+pub mod metrics;
 pub mod model;
+pub mod runtime;
 pub mod settings;
 pub mod text;

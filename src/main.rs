@@ -3,6 +3,7 @@
 //! Exit codes: 0 success; 1 runtime or I/O failure; 2 bad usage or settings;
 //! 3 bad input data (with `--strict`, an unknown field, no usable rows);
 //! 4 a model file was refused (corrupt, truncated, foreign, other analyzer).
+//! `run` also exits 130 when a second SIGTERM/SIGINT cuts its drain short.
 
 use std::process::ExitCode;
 
@@ -31,11 +32,16 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Classify(a) => commands::classify::run(settings, a),
         Command::Eval(a) => commands::eval::run(settings, a),
         Command::Inspect(a) => commands::inspect::run(settings, a),
+        Command::Run(a) => commands::run::run(settings, a),
+        Command::BenchStream(a) => commands::bench_stream::run(settings, a),
     }
 }
 
 fn exit_code(e: &anyhow::Error) -> u8 {
     for cause in e.chain() {
+        if let Some(code) = commands::run::exit_code_of(cause) {
+            return code;
+        }
         if cause.is::<SettingsError>() {
             return 2;
         }

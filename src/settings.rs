@@ -36,6 +36,14 @@ pub struct Settings {
     pub model: ModelSettings,
     pub review: ReviewSettings,
     pub train: TrainSettings,
+    pub service: ServiceSettings,
+    pub source: SourceSettings,
+    pub sink: SinkSettings,
+    pub kafka: KafkaSettings,
+    pub routing: RoutingSettings,
+    pub dead_letter: DeadLetterSettings,
+    pub delivery: DeliverySettings,
+    pub admin: AdminSettings,
 }
 
 /// Everything that changes which terms a record yields. Its fingerprint goes
@@ -185,6 +193,133 @@ pub struct ReviewSettings {
 #[serde(deny_unknown_fields)]
 pub struct TrainSettings {
     pub progress_min_rows: usize,
+}
+
+choice_enum!(
+    /// Where the service reads records from.
+    SourceKind { Stdin => "stdin", File => "file", Kafka => "kafka" }
+);
+choice_enum!(
+    /// Where the service writes decisions, reviews and dead letters.
+    SinkKind { Stdout => "stdout", File => "file", Kafka => "kafka" }
+);
+choice_enum!(
+    /// How a record's bytes become fields: a JSON object, or one plain text line.
+    CodecKind { Json => "json", Text => "text" }
+);
+
+/// The streaming service as a whole (`sieveline run`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ServiceSettings {
+    pub model: String,
+    pub drain_timeout_ms: u64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SourceSettings {
+    pub kind: SourceKind,
+    pub codec: CodecKind,
+    pub path: String,
+    pub topics: Vec<String>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SinkSettings {
+    pub kind: SinkKind,
+    pub path: String,
+}
+
+/// Kafka client settings; `properties` go to librdkafka unchanged (both clients).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct KafkaSettings {
+    pub bootstrap_servers: String,
+    pub group_id: String,
+    pub properties: BTreeMap<String, String>,
+    pub consumer_properties: BTreeMap<String, String>,
+    pub producer_properties: BTreeMap<String, String>,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RoutingSettings {
+    pub topic_template: String,
+    pub review_topic: String,
+    pub create_missing_topics: bool,
+    pub create_partitions: i32,
+    pub create_replication_factor: i32,
+    pub metadata_refresh_ms: u64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DeadLetterSettings {
+    pub topic: String,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DeliverySettings {
+    pub max_in_flight_per_partition: usize,
+    pub commit_interval_ms: u64,
+    pub revoke_drain_ms: u64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AdminSettings {
+    pub enabled: bool,
+    pub bind: String,
+    pub token: String,
+}
+
+/// librdkafka properties the service sets itself, because delivery guarantees depend on them.
+pub const KAFKA_RESERVED_PROPERTIES: &[&str] =
+    &["enable.auto.offset.store", "enable.idempotence", "enable.auto.commit", "group.id", "auto.commit.interval.ms"];
+
+/// A librdkafka property name as written in settings: dots as they are, and
+/// underscores read as dots, so `session_timeout_ms` works in environment overrides.
+pub fn kafka_property_name(key: &str) -> String {
+    key.replace('_', ".")
+}
+
+choice_enum!(
+    /// How hand-written rules and the model share decisions (docs/rules.md).
+    BlendMode {
+        RulesOnly => "rules_only",
+        RulesFirst => "rules_first",
+        ModelFirst => "model_first",
+        Takeover => "takeover",
+    }
+);
+
+/// Hand-written rules and how they blend with the model.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RulesSettings {
+    /// Rules file (TOML); empty for none.
+    pub path: String,
+    pub blend: BlendMode,
+    /// `takeover`: a class's non-guard rules step aside once the model has this many labels for it.
+    pub takeover_labels: u64,
+    /// `model_first`: the log-odds a non-guard assign rule adds to its class.
+    pub assign_boost: f64,
+}
+
+impl Settings {
+    fn validate_rules(&self) -> Result<(), SettingsError> {
+        let r = &self.rules;
+        if r.takeover_labels == 0 || r.takeover_labels > 1_000_000_000 {
+            return Err(invalid("rules.takeover_labels", r.takeover_labels, "an integer from 1 to 1000000000"));
+        }
+        if !(r.assign_boost.is_finite() && r.assign_boost > 0.0 && r.assign_boost <= 50.0) {
+            return Err(invalid("rules.assign_boost", r.assign_boost, "a number of log-odds above 0, at most 50"));
+        }
+        Ok(())
+    }
 }
 
 impl Settings {
@@ -352,8 +487,102 @@ impl Settings {
                 return Err(invalid(&format!("review.class_min_confidence.{class}"), t, "a number from 0 to 1"));
             }
         }
+        self.validate_service()
+    }
+
+    /// The service sections: sources, sinks, Kafka, routing, delivery, admin.
+    fn validate_service(&self) -> Result<(), SettingsError> {
+        if self.service.drain_timeout_ms == 0 || self.service.drain_timeout_ms > 3_600_000 {
+            return Err(invalid("service.drain_timeout_ms", self.service.drain_timeout_ms, "1 to 3600000 milliseconds"));
+        }
+        if self.source.kind == SourceKind::File && self.source.path.is_empty() {
+            return Err(invalid("source.path", "", "a file path when source.kind = \"file\""));
+        }
+        if self.sink.kind == SinkKind::File && self.sink.path.is_empty() {
+            return Err(invalid("sink.path", "", "a file path when sink.kind = \"file\""));
+        }
+        let uses_kafka = self.source.kind == SourceKind::Kafka || self.sink.kind == SinkKind::Kafka;
+        if self.source.kind == SourceKind::Kafka {
+            if self.source.topics.is_empty() || self.source.topics.iter().any(|t| !valid_topic(t)) {
+                return Err(invalid(
+                    "source.topics",
+                    format!("{:?}", self.source.topics),
+                    "at least one topic name of a-z, A-Z, 0-9, '.', '_' and '-' when source.kind = \"kafka\"",
+                ));
+            }
+            if self.kafka.group_id.is_empty() {
+                return Err(invalid("kafka.group_id", "", "a consumer group id when source.kind = \"kafka\""));
+            }
+        }
+        if uses_kafka && self.kafka.bootstrap_servers.is_empty() {
+            return Err(invalid("kafka.bootstrap_servers", "", "host:port[,host:port...] when Kafka is used"));
+        }
+        for (section, props) in [
+            ("kafka.properties", &self.kafka.properties),
+            ("kafka.consumer_properties", &self.kafka.consumer_properties),
+            ("kafka.producer_properties", &self.kafka.producer_properties),
+        ] {
+            for key in props.keys() {
+                let name = kafka_property_name(key);
+                if KAFKA_RESERVED_PROPERTIES.contains(&name.as_str()) {
+                    return Err(invalid(
+                        &format!("{section}.{key}"),
+                        &props[key],
+                        "no value: the service sets this property itself (see [kafka], [delivery])",
+                    ));
+                }
+            }
+        }
+        let t = &self.routing.topic_template;
+        let probe = t.replace("{class}", "x");
+        if t.is_empty() || probe.contains('{') || probe.contains('}') || !valid_topic(&probe) {
+            return Err(invalid(
+                "routing.topic_template",
+                t,
+                "a topic name that may contain {class}, otherwise only a-z, A-Z, 0-9, '.', '_' and '-'",
+            ));
+        }
+        if !valid_topic(&self.routing.review_topic) {
+            return Err(invalid("routing.review_topic", &self.routing.review_topic, "a topic name"));
+        }
+        if !valid_topic(&self.dead_letter.topic) {
+            return Err(invalid("dead_letter.topic", &self.dead_letter.topic, "a topic name"));
+        }
+        if !(1..=10_000).contains(&self.routing.create_partitions) {
+            return Err(invalid("routing.create_partitions", self.routing.create_partitions, "1 to 10000"));
+        }
+        if !(1..=32).contains(&self.routing.create_replication_factor) {
+            return Err(invalid("routing.create_replication_factor", self.routing.create_replication_factor, "1 to 32"));
+        }
+        if self.routing.metadata_refresh_ms < 100 {
+            return Err(invalid("routing.metadata_refresh_ms", self.routing.metadata_refresh_ms, "at least 100"));
+        }
+        let d = &self.delivery;
+        if !(1..=100_000).contains(&d.max_in_flight_per_partition) {
+            return Err(invalid("delivery.max_in_flight_per_partition", d.max_in_flight_per_partition, "1 to 100000"));
+        }
+        if !(10..=600_000).contains(&d.commit_interval_ms) {
+            return Err(invalid("delivery.commit_interval_ms", d.commit_interval_ms, "10 to 600000 milliseconds"));
+        }
+        if !(1..=600_000).contains(&d.revoke_drain_ms) {
+            return Err(invalid("delivery.revoke_drain_ms", d.revoke_drain_ms, "1 to 600000 milliseconds"));
+        }
+        let a = &self.admin;
+        match a.bind.parse::<std::net::SocketAddr>() {
+            Err(_) => return Err(invalid("admin.bind", &a.bind, "an IP address and port, e.g. 127.0.0.1:9464")),
+            Ok(addr) if !addr.ip().is_loopback() && a.token.is_empty() => {
+                return Err(invalid(
+                    "admin.token",
+                    "",
+                    "a bearer token when admin.bind is not a loopback address",
+                ))
+            }
+            Ok(_) => {}
+        }
         Ok(())
     }
+}
+
 }
 
 /// A weight is positive, at most `MAX_WEIGHT`, and a multiple of `WEIGHT_QUANTUM`.
@@ -367,6 +596,15 @@ pub fn check_weight(key: &str, w: f64) -> Result<(), SettingsError> {
         ));
     }
     Ok(())
+}
+
+/// A legal Kafka topic name: 1 to 249 of a-z, A-Z, 0-9, '.', '_' and '-', not "." or "..".
+pub fn valid_topic(t: &str) -> bool {
+    !t.is_empty()
+        && t.len() <= 249
+        && t != "."
+        && t != ".."
+        && t.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'.' || b == b'_' || b == b'-')
 }
 
 fn invalid(key: &str, value: impl std::fmt::Display, allowed: &str) -> SettingsError {

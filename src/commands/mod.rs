@@ -1,8 +1,10 @@
 //! Subcommands, one file each, plus the flag-over-settings helpers they share.
 
+pub mod bench_stream;
 pub mod classify;
 pub mod eval;
 pub mod inspect;
+pub mod run;
 pub mod train;
 
 use std::path::Path;

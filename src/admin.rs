@@ -1,0 +1,111 @@
+//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON) and `POST /classify`; a bearer token guards all but metrics and health.
+
+use std::sync::Arc;
+
+use axum::body::Bytes;
+use axum::extract::{Request, State};
+use axum::http::{header, HeaderMap, StatusCode};
+use axum::middleware::{self, Next};
+use axum::response::{IntoResponse, Response};
+use axum::routing::{get, post};
+use axum::{Json, Router as HttpRouter};
+use tokio::net::TcpListener;
+use tokio_util::sync::CancellationToken;
+
+use crate::io::lines::render_line;
+use crate::io::message::Inbound;
+use crate::metrics::Metrics;
+use crate::runtime::model_view::ModelHandle;
+use crate::runtime::router::{RouteScratch, Router};
+use crate::runtime::Readiness;
+
+/// The largest body `POST /classify` reads.
+const MAX_CLASSIFY_BODY: usize = 1 << 20;
+
+#[derive(Clone)]
+pub struct AdminState {
+    pub metrics: Arc<Metrics>,
+    pub model: ModelHandle,
+    pub router: Arc<Router>,
+    pub readiness: Arc<Readiness>,
+    /// Required as `Authorization: Bearer <token>` on guarded routes when set.
+    pub token: Option<String>,
+}
+
+/// The routes; guarded ones check the bearer token.
+pub fn routes(state: AdminState) -> HttpRouter {
+    let guarded = HttpRouter::new()
+        .route("/model", get(model_info))
+        .route("/classify", post(classify))
+        .route_layer(middleware::from_fn_with_state(state.clone(), require_token));
+    HttpRouter::new()
+        .route("/metrics", get(metrics))
+        .route("/healthz", get(|| async { "ok\n" }))
+        .route("/readyz", get(readyz))
+        .merge(guarded)
+        .layer(axum::extract::DefaultBodyLimit::max(MAX_CLASSIFY_BODY))
+        .with_state(state)
+}
+
+/// Serve until `stop` is cancelled.
+pub async fn serve(listener: TcpListener, state: AdminState, stop: CancellationToken) {
+    let app = routes(state);
+    if let Err(e) = axum::serve(listener, app).with_graceful_shutdown(async move { stop.cancelled().await }).await {
+        tracing::error!("admin endpoint stopped: {e}");
+    }
+}
+
+async fn require_token(State(st): State<AdminState>, headers: HeaderMap, req: Request, next: Next) -> Response {
+    if let Some(token) = &st.token {
+        let given =
+            headers.get(header::AUTHORIZATION).and_then(|v| v.to_str().ok()).and_then(|v| v.strip_prefix("Bearer "));
+        if !given.is_some_and(|g| constant_time_eq(g.as_bytes(), token.as_bytes())) {
+            return (StatusCode::UNAUTHORIZED, [(header::WWW_AUTHENTICATE, "Bearer")], "bearer token required\n")
+                .into_response();
+        }
+    }
+    next.run(req).await
+}
+
+fn constant_time_eq(a: &[u8], b: &[u8]) -> bool {
+    a.len() == b.len() && a.iter().zip(b).fold(0u8, |acc, (x, y)| acc | (x ^ y)) == 0
+}
+
+async fn metrics(State(st): State<AdminState>) -> Response {
+    ([(header::CONTENT_TYPE, "text/plain; version=0.0.4; charset=utf-8")], st.metrics.render()).into_response()
+}
+
+async fn readyz(State(st): State<AdminState>) -> Response {
+    if st.readiness.ready() {
+        (StatusCode::OK, "ready\n").into_response()
+    } else {
+        let why = if st.readiness.model_loaded.load(std::sync::atomic::Ordering::SeqCst) {
+            "waiting for the consumer group join\n"
+        } else {
+            "model not loaded\n"
+        };
+        (StatusCode::SERVICE_UNAVAILABLE, why).into_response()
+    }
+}
+
+async fn model_info(State(st): State<AdminState>) -> Response {
+    Json(st.model.current().info()).into_response()
+}
+
+/// The body is one record in the source codec; the answer is the output line the service would write.
+async fn classify(State(st): State<AdminState>, body: Bytes) -> Response {
+    let view = st.model.current();
+    let rec = Inbound {
+        topic: "admin",
+        partition: 0,
+        offset: 0,
+        key: None,
+        payload: Some(&body),
+        headers: Vec::new(),
+        timestamp_ms: None,
+    };
+    let mut scratch = RouteScratch::default();
+    let (out, decision) = st.router.route(&view, &rec, &mut scratch);
+    let status = if decision.is_some() { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
+    (status, [(header::CONTENT_TYPE, "application/json")], render_line(&out)).into_response()
+}

@@ -1,0 +1,66 @@
+//! librdkafka client configuration: the settings' pass-through properties plus the properties delivery guarantees depend on, which the service always sets itself.
+
+use rdkafka::ClientConfig;
+
+use crate::settings::{kafka_property_name, Settings};
+
+/// Consumer: consumer group, no automatic offset store (offsets are stored
+/// only after the output's ack), automatic commit of stored offsets.
+pub fn consumer_config(s: &Settings) -> ClientConfig {
+    let mut c = base(s);
+    c.set("auto.offset.reset", "earliest");
+    for (k, v) in &s.kafka.consumer_properties {
+        c.set(kafka_property_name(k), v);
+    }
+    c.set("group.id", &s.kafka.group_id);
+    c.set("enable.auto.offset.store", "false");
+    c.set("enable.auto.commit", "true");
+    c.set("auto.commit.interval.ms", s.delivery.commit_interval_ms.to_string());
+    c.set("enable.partition.eof", "false");
+    c
+}
+
+/// Producer: idempotent (acks=all, ordered retries).
+pub fn producer_config(s: &Settings) -> ClientConfig {
+    let mut c = base(s);
+    c.set("linger.ms", "5");
+    for (k, v) in &s.kafka.producer_properties {
+        c.set(kafka_property_name(k), v);
+    }
+    c.set("enable.idempotence", "true");
+    c
+}
+
+/// Admin client for topic creation: the shared properties only.
+pub fn admin_config(s: &Settings) -> ClientConfig {
+    base(s)
+}
+
+fn base(s: &Settings) -> ClientConfig {
+    let mut c = ClientConfig::new();
+    c.set("bootstrap.servers", &s.kafka.bootstrap_servers);
+    c.set("client.id", "sieveline");
+    for (k, v) in &s.kafka.properties {
+        c.set(kafka_property_name(k), v);
+    }
+    c
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn pass_through_and_guarantees() {
+        let mut s = Settings::defaults();
+        s.kafka.properties.insert("security.protocol".into(), "ssl".into());
+        s.kafka.properties.insert("session_timeout_ms".into(), "6000".into());
+        let c = consumer_config(&s);
+        assert_eq!(c.get("security.protocol"), Some("ssl"));
+        assert_eq!(c.get("session.timeout.ms"), Some("6000"));
+        assert_eq!(c.get("enable.auto.offset.store"), Some("false"));
+        let p = producer_config(&s);
+        assert_eq!(p.get("enable.idempotence"), Some("true"));
+        assert_eq!(p.get("security.protocol"), Some("ssl"));
+    }
+}

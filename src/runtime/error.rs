@@ -1,0 +1,23 @@
+//! Why the service could not start or had to stop.
+
+use thiserror::Error;
+
+use crate::error::SnapshotError;
+
+#[derive(Debug, Error)]
+pub enum ServiceError {
+    #[error("service.model is empty: give a model snapshot with --model FILE or service.model")]
+    NoModel,
+    #[error("cannot load the model")]
+    Model(#[source] SnapshotError),
+    #[error("analyzer patterns do not compile: {0}")]
+    Analyzer(String),
+    #[error("kafka {what}: {source}")]
+    Kafka { what: String, source: rdkafka::error::KafkaError },
+    #[error("{what}: {source}")]
+    Io { what: String, source: std::io::Error },
+    #[error("admin endpoint cannot bind {addr}: {source}")]
+    AdminBind { addr: String, source: std::io::Error },
+    #[error("topic {topic} ({role}) does not exist; create it or set routing.create_missing_topics = true")]
+    MissingTopic { topic: String, role: &'static str },
+}
