@@ -40,6 +40,8 @@ pub enum ReviewReason {
     LowMargin { margin: f64, floor: f64 },
     Rule { id: String },
     NoModel,
+    /// `rules_only`: no rule assigned a class.
+    Unmatched,
 }
 
 impl ReviewReason {
@@ -50,6 +52,7 @@ impl ReviewReason {
             ReviewReason::LowMargin { .. } => "low_margin",
             ReviewReason::Rule { .. } => "rule",
             ReviewReason::NoModel => "no_model",
+            ReviewReason::Unmatched => "unmatched",
         }
     }
 }
@@ -107,6 +110,10 @@ impl ReviewPolicy {
         None
     }
 }
+
+/// The blended entry point (rules + model under the blend mode), beside
+/// `decide_by_model`; it lives with the rules in `src/rules/blend.rs`.
+pub use crate::rules::blend::{BlendScratch, Decider, DecideWork};
 
 /// Everything a scorer needs per worker, reused across records.
 #[derive(Debug, Default)]

@@ -5,6 +5,7 @@
 //! - [`text`]: the analyzer — tokenise, collapse volatile terms, fold, weight;
 //! - [`features`]: term → row, by an interned vocabulary or feature hashing;
 //! - [`model`]: multinomial / complement Naive Bayes in log space, snapshots;
+//! - [`rules`]: hand-written rules — file format, validation, one term index, blending with the model;
 //! - [`decide`]: scores → `Decision`, the review policy;
 //! - [`eval`]: metrics, folds, cross-validated tuning, reports;
 //! - [`io`]: record codecs and file readers (offline and streaming edges);
@@ -24,6 +25,7 @@ pub mod features;
 pub mod io;
 pub mod metrics;
 pub mod model;
+pub mod rules;
 pub mod runtime;
 pub mod settings;
 pub mod text;

@@ -36,6 +36,7 @@ pub struct Settings {
     pub model: ModelSettings,
     pub review: ReviewSettings,
     pub train: TrainSettings,
+    pub rules: RulesSettings,
     pub service: ServiceSettings,
     pub source: SourceSettings,
     pub sink: SinkSettings,
@@ -399,6 +400,7 @@ impl Settings {
 
     /// Check every value once; the error names the key, the value and what is allowed.
     pub fn validate(&self) -> Result<(), SettingsError> {
+        self.validate_rules()?;
         let a = &self.analyzer;
         if a.min_token_len == 0 || a.min_token_len > a.max_token_len {
             return Err(invalid(
@@ -581,8 +583,6 @@ impl Settings {
         }
         Ok(())
     }
-}
-
 }
 
 /// A weight is positive, at most `MAX_WEIGHT`, and a multiple of `WEIGHT_QUANTUM`.

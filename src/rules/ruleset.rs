@@ -1,0 +1,214 @@
+//! The compiled `RuleSet`: an immutable value built once from a file (rules, conditions, one term index, one regex set), shared by reference.
+//!
+//! A `RuleSet` is never mutated after it is built, so a service can hold it in
+//! an `Arc`, load and validate a new one off the hot path, and swap the `Arc`
+//! atomically (for example behind `arc_swap::ArcSwap`). Every record is then
+//! matched against one whole set, old or new, never a mix.
+
+use std::ops::Range;
+
+use regex::{Regex, RegexSet};
+use rustc_hash::FxHashMap;
+
+/// What a rule does when it fires.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Action {
+    /// Decide the class.
+    Assign,
+    /// Add this many log-odds to the class's log score before the posterior.
+    Boost(f64),
+    /// Send the record to a person.
+    Review,
+}
+
+impl Action {
+    pub fn name(&self) -> &'static str {
+        match self {
+            Action::Assign => "assign",
+            Action::Boost(_) => "boost",
+            Action::Review => "review",
+        }
+    }
+
+    /// At equal priority: review before assign before boost.
+    pub(crate) fn rank(&self) -> u8 {
+        match self {
+            Action::Review => 0,
+            Action::Assign => 1,
+            Action::Boost(_) => 2,
+        }
+    }
+}
+
+/// One rule as compiled.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Rule {
+    pub id: String,
+    pub class: String,
+    pub action: Action,
+    pub priority: i32,
+    pub guard: bool,
+    pub note: Option<String>,
+    /// Line of the rule's `id` in the file.
+    pub line: usize,
+    pub(crate) conds: Range<u32>,
+}
+
+/// The kind of one condition.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CondKind {
+    /// At least `at_least` distinct listed terms occur.
+    Any,
+    /// Every listed term occurs.
+    All,
+    /// No listed term occurs.
+    None,
+    /// The raw-text regex matches at least `at_least` times.
+    Regex,
+}
+
+impl CondKind {
+    pub fn name(&self) -> &'static str {
+        match self {
+            CondKind::Any => "any",
+            CondKind::All => "all",
+            CondKind::None => "none",
+            CondKind::Regex => "regex",
+        }
+    }
+}
+
+/// One condition of a rule; all of a rule's conditions must hold.
+#[derive(Debug, Clone)]
+pub struct Cond {
+    pub kind: CondKind,
+    /// Index into the input fields, or `None` for every field.
+    pub field: Option<usize>,
+    /// Hits needed (`any`, `regex`), or the number of items (`all`); 0 for `none`.
+    pub at_least: u32,
+    pub(crate) items: Range<u32>,
+    pub(crate) regex: Option<u32>,
+    pub rule: u32,
+    pub line: usize,
+}
+
+/// A listed term or phrase, as written and as analyzed.
+#[derive(Debug, Clone)]
+pub struct Item {
+    pub text: String,
+    /// One token for a term, several for a phrase (matched consecutively).
+    pub tokens: Vec<Box<str>>,
+    pub cond: u32,
+}
+
+/// An entry of the term index: this token starts `item` of `cond` of `rule`.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Posting {
+    pub item: u32,
+    pub cond: u32,
+    pub rule: u32,
+    /// Field index or `u32::MAX` for every field.
+    pub field: u32,
+    /// Tokens in the item (1 for a single term).
+    pub len: u32,
+}
+
+pub(crate) const ANY_FIELD: u32 = u32::MAX;
+
+/// A validated, compiled rules file.
+#[derive(Debug, Clone)]
+pub struct RuleSet {
+    pub(crate) source: String,
+    pub(crate) fingerprint: String,
+    pub(crate) analyzer_fingerprint: String,
+    pub(crate) fields: Vec<String>,
+    pub(crate) rules: Vec<Rule>,
+    pub(crate) conds: Vec<Cond>,
+    pub(crate) items: Vec<Item>,
+    /// First token → range of `postings`: the one lookup per record token.
+    pub(crate) index: FxHashMap<Box<str>, (u32, u32)>,
+    pub(crate) postings: Vec<Posting>,
+    /// Every regex condition in one set, run once per field text.
+    pub(crate) regex_set: Option<RegexSet>,
+    pub(crate) regexes: Vec<Regex>,
+    /// Regex index → condition.
+    pub(crate) regex_conds: Vec<u32>,
+    /// Precedence rank of each rule (0 first): guards, then priority, then action, then file order.
+    pub(crate) rank: Vec<u32>,
+    pub(crate) classes: Vec<String>,
+}
+
+impl RuleSet {
+    /// The rules in file order.
+    pub fn rules(&self) -> &[Rule] {
+        &self.rules
+    }
+
+    pub fn rule(&self, i: u32) -> &Rule {
+        &self.rules[i as usize]
+    }
+
+    pub fn len(&self) -> usize {
+        self.rules.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.rules.is_empty()
+    }
+
+    /// The conditions of a rule.
+    pub fn conditions(&self, rule: u32) -> &[Cond] {
+        let r = &self.rules[rule as usize].conds;
+        &self.conds[r.start as usize..r.end as usize]
+    }
+
+    /// The listed terms of a condition.
+    pub fn items(&self, cond: &Cond) -> &[Item] {
+        &self.items[cond.items.start as usize..cond.items.end as usize]
+    }
+
+    /// The regex of a regex condition.
+    pub fn regex(&self, cond: &Cond) -> Option<&Regex> {
+        cond.regex.map(|i| &self.regexes[i as usize])
+    }
+
+    /// The distinct target classes, sorted.
+    pub fn classes(&self) -> &[String] {
+        &self.classes
+    }
+
+    /// The input field names the set was compiled against; `Cond::field` indexes them.
+    pub fn fields(&self) -> &[String] {
+        &self.fields
+    }
+
+    pub fn field_index(&self, name: &str) -> Option<usize> {
+        self.fields.iter().position(|f| f == name)
+    }
+
+    /// Where the set came from (a path, or a name for in-memory text).
+    pub fn source(&self) -> &str {
+        &self.source
+    }
+
+    /// blake3 of the file text, first 16 hex digits: tells two loaded versions apart.
+    pub fn fingerprint(&self) -> &str {
+        &self.fingerprint
+    }
+
+    /// The fingerprint of the analyzer the terms were compiled with. Matching
+    /// records analyzed with other settings would compare different terms.
+    pub fn analyzer_fingerprint(&self) -> &str {
+        &self.analyzer_fingerprint
+    }
+
+    /// Distinct first tokens in the term index (for reports and benches).
+    pub fn indexed_terms(&self) -> usize {
+        self.index.len()
+    }
+
+    /// The precedence rank of a rule (0 is considered first).
+    pub fn rank(&self, rule: u32) -> u32 {
+        self.rank[rule as usize]
+    }
+}
