@@ -85,6 +85,7 @@ const WORD: u8 = 1;
 const SPECIAL: u8 = 2; // a byte that may start a collapsible family or a separator
 const SPACE: u8 = 4;
 const SEP: u8 = 8; // a hard separator
+const COLON: u8 = 16;
 
 const fn byte_classes() -> [u8; 256] {
     let mut t = [SPECIAL; 256];
@@ -101,6 +102,8 @@ const fn byte_classes() -> [u8; 256] {
             0
         } else if is_separator_byte(b) {
             SPECIAL | SEP
+        } else if b == b':' {
+            SPECIAL | COLON
         } else {
             SPECIAL
         };
@@ -139,7 +142,7 @@ fn ascii_tokens<F: FnMut(&str)>(text: &str, cfg: &TokenConfig, lower: &mut Strin
         if plain {
             plain_words(chunk, cfg, lower, emit);
         } else {
-            chunk_tokens(chunk, cfg, lower, emit);
+            chunk_tokens_flagged(chunk, flags, cfg, lower, emit);
         }
     }
 }
@@ -181,15 +184,29 @@ fn word<F: FnMut(&str)>(piece: &str, chars: usize, cfg: &TokenConfig, lower: &mu
 /// The general path for one whitespace chunk.
 #[inline]
 fn chunk_tokens<F: FnMut(&str)>(chunk: &str, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
-    if cfg.collapse.urls && collapse::url::matches(trim_for_url(chunk).as_bytes()) {
-        emit(collapse::URL);
-        return;
+    let mut flags = 0;
+    for &c in chunk.as_bytes() {
+        flags |= CLASSES[c as usize];
     }
-    let b = chunk.as_bytes();
-    if !b.iter().any(|&c| is_separator_byte(c)) {
+    chunk_tokens_flagged(chunk, flags, cfg, lower, emit);
+}
+
+/// One whitespace chunk whose byte classes are known.
+#[inline]
+fn chunk_tokens_flagged<F: FnMut(&str)>(chunk: &str, flags: u8, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
+    if cfg.collapse.urls {
+        let t = trim_for_url(chunk).as_bytes();
+        let www = t.len() > 4 && t[..4].eq_ignore_ascii_case(b"www.");
+        if (flags & COLON != 0 || www) && collapse::url::matches(t) {
+            emit(collapse::URL);
+            return;
+        }
+    }
+    if flags & SEP == 0 {
         part_tokens(chunk, cfg, lower, emit);
         return;
     }
+    let b = chunk.as_bytes();
     let mut at = 0;
     for (i, &c) in b.iter().enumerate() {
         if is_separator_byte(c) {
@@ -206,8 +223,29 @@ fn part_tokens<F: FnMut(&str)>(part: &str, cfg: &TokenConfig, lower: &mut String
     if part.is_empty() {
         return;
     }
-    if let Some(tok) = classify_chunk(part, &cfg.collapse) {
-        emit(tok);
+    let digits = match classify_chunk(part, &cfg.collapse) {
+        Ok(tok) => {
+            emit(tok);
+            return;
+        }
+        Err(shape) => shape.digits > 0 || shape.non_ascii,
+    };
+    if !digits {
+        // No digit anywhere: no piece can be a number, hex id or code.
+        let b = part.as_bytes();
+        let mut i = 0;
+        while i < b.len() {
+            while i < b.len() && CLASSES[b[i] as usize] & WORD == 0 {
+                i += 1;
+            }
+            let s = i;
+            while i < b.len() && CLASSES[b[i] as usize] & WORD != 0 {
+                i += 1;
+            }
+            if s < i {
+                word(&part[s..i], i - s, cfg, lower, emit);
+            }
+        }
         return;
     }
     if part.is_ascii() {

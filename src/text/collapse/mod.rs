@@ -66,15 +66,22 @@ impl Shape {
     }
 }
 
-/// The class token for a whole chunk, if one enabled family claims it.
+/// The class token for a whole chunk if one enabled family claims it, else the chunk's shape.
 #[inline]
-pub fn classify_chunk(s: &str, on: &CollapseSettings) -> Option<&'static str> {
+pub fn classify_chunk(s: &str, on: &CollapseSettings) -> Result<&'static str, Shape> {
     let b = s.as_bytes();
     let sh = Shape::of(b);
+    classify_shaped(s, &sh, on).ok_or(sh)
+}
+
+#[inline]
+fn classify_shaped(s: &str, sh: &Shape, on: &CollapseSettings) -> Option<&'static str> {
+    let b = s.as_bytes();
     if sh.non_ascii {
         return None;
     }
-    if on.urls && (sh.colon || sh.dot) && url::matches(b) {
+    let www = b.len() > 4 && b[..4].eq_ignore_ascii_case(b"www.");
+    if on.urls && (sh.colon || www) && url::matches(b) {
         return Some(URL);
     }
     if on.emails && sh.at && email::matches(b) {
@@ -130,6 +137,7 @@ mod tests {
     #[test]
     fn order_of_families() {
         let on = all();
+        let classify_chunk = |s: &str, on: &CollapseSettings| super::classify_chunk(s, on).ok();
         assert_eq!(classify_chunk("https://shop.example.test/a?b", &on), Some(URL));
         assert_eq!(classify_chunk("ana@trail.example", &on), Some(EMAIL));
         assert_eq!(classify_chunk("3f2b8c1e-0a4d-4e5f-9a6b-7c8d9e0f1a2b", &on), Some(UUID));
@@ -145,6 +153,7 @@ mod tests {
 
     #[test]
     fn switched_off_family_is_not_collapsed() {
+        let classify_chunk = |s: &str, on: &CollapseSettings| super::classify_chunk(s, on).ok();
         let mut on = all();
         on.ip_addresses = false;
         assert_eq!(classify_chunk("10.0.0.12", &on), None);
