@@ -174,14 +174,15 @@ pub fn ticket(rng: &mut SplitMix64, phase: &Phase, unix_secs: i64) -> Ticket {
         }
     }
 
-    let mut body = typos(rng, &body, TYPO_RATE);
-    let mut subject = typos(rng, &subject, TYPO_RATE / 2.0);
+    // Case habits first, so typos (which touch only lowercase words) never make a capitalised word the vocabulary lacks.
     if chance(rng, LOWERCASE_WRITER) {
         body = body.to_lowercase();
         subject = subject.to_lowercase();
     } else if chance(rng, SHOUTED_SUBJECT) {
         subject = subject.to_uppercase();
     }
+    let body = typos(rng, &body, TYPO_RATE);
+    let subject = typos(rng, &subject, TYPO_RATE / 2.0);
     Ticket {
         class,
         subject,

@@ -172,7 +172,7 @@ pub const TEAMS: &[Team] = &[
             "Please confirm you received my return, tracking {tracking}.",
             "Do I have to pay for return shipping if I simply changed my mind?",
             "I dropped the parcel at the {carrier} counter in {city} on {date}.",
-            "Where do I print the return form? The link opens a blank page.",
+            "Where do I print the return form? The link https://quillmoss.example/returns/{h8} opens a blank page.",
             "The refund only covered part of the price although I sent everything back.",
         ],
         new_line_lines: &[
