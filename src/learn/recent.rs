@@ -1,0 +1,175 @@
+//! The recent-record cache: the analyzed terms of records this replica scored, by id, bounded in entries and age, so id-only labels can be resolved into complete events.
+//!
+//! Eviction is first-in first-out by insertion; re-inserting an id refreshes
+//! it. Entries older than the TTL are misses. A miss (evicted, expired, or
+//! scored before a restart) cannot be resolved: the label is dead-lettered as
+//! `unknown id`. Time is passed in, so the structure stays pure and testable.
+
+use std::collections::VecDeque;
+use std::time::{Duration, Instant};
+
+use rustc_hash::FxHashMap;
+
+use crate::text::TermBag;
+
+/// What is kept about a scored record.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CachedRecord {
+    /// The analyzed terms, as scored.
+    pub terms: TermBag,
+    /// The class it was routed to.
+    pub class: String,
+    /// The input partition it came from.
+    pub partition: i32,
+}
+
+struct Entry {
+    record: CachedRecord,
+    at: Instant,
+    generation: u64,
+}
+
+/// Counters for metrics.
+#[derive(Debug, Default, Clone, Copy, PartialEq)]
+pub struct RecentStats {
+    pub inserts: u64,
+    pub hits: u64,
+    pub misses: u64,
+    pub expired: u64,
+    pub evictions: u64,
+}
+
+pub struct RecentCache {
+    capacity: usize,
+    ttl: Duration,
+    map: FxHashMap<Box<str>, Entry>,
+    order: VecDeque<(Box<str>, u64)>,
+    generation: u64,
+    stats: RecentStats,
+}
+
+impl RecentCache {
+    pub fn new(capacity: usize, ttl: Duration) -> RecentCache {
+        assert!(capacity > 0, "capacity is validated in settings");
+        RecentCache { capacity, ttl, map: FxHashMap::default(), order: VecDeque::new(), generation: 0, stats: RecentStats::default() }
+    }
+
+    pub fn len(&self) -> usize {
+        self.map.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.map.is_empty()
+    }
+
+    pub fn capacity(&self) -> usize {
+        self.capacity
+    }
+
+    pub fn stats(&self) -> RecentStats {
+        self.stats
+    }
+
+    pub fn insert(&mut self, id: &str, record: CachedRecord, now: Instant) {
+        self.generation += 1;
+        let g = self.generation;
+        self.stats.inserts += 1;
+        self.map.insert(id.into(), Entry { record, at: now, generation: g });
+        self.order.push_back((id.into(), g));
+        while self.map.len() > self.capacity {
+            self.evict_one();
+        }
+        // Re-inserted ids leave stale queue items; keep the queue bounded too.
+        if self.order.len() > 2 * self.capacity {
+            let map = &self.map;
+            self.order.retain(|(id, g)| map.get(id).is_some_and(|e| e.generation == *g));
+        }
+    }
+
+    fn evict_one(&mut self) {
+        while let Some((id, g)) = self.order.pop_front() {
+            if self.map.get(&id).is_some_and(|e| e.generation == g) {
+                self.map.remove(&id);
+                self.stats.evictions += 1;
+                return;
+            }
+        }
+    }
+
+    /// The record for `id` if present and younger than the TTL.
+    pub fn get(&mut self, id: &str, now: Instant) -> Option<&CachedRecord> {
+        let expired = match self.map.get(id) {
+            None => {
+                self.stats.misses += 1;
+                return None;
+            }
+            Some(e) => now.saturating_duration_since(e.at) > self.ttl,
+        };
+        if expired {
+            self.map.remove(id);
+            self.stats.misses += 1;
+            self.stats.expired += 1;
+            return None;
+        }
+        self.stats.hits += 1;
+        self.map.get(id).map(|e| &e.record)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn rec(class: &str) -> CachedRecord {
+        CachedRecord { terms: TermBag::from_pairs([("refund", 1.0)]), class: class.into(), partition: 0 }
+    }
+
+    #[test]
+    fn never_exceeds_capacity_under_a_million_inserts_and_counts_misses() {
+        let mut c = RecentCache::new(10_000, Duration::from_secs(3600));
+        let t = Instant::now();
+        let mut max_len = 0;
+        let mut max_queue = 0;
+        for i in 0..1_000_000u64 {
+            // A mix of fresh ids and re-inserted recent ones.
+            let id = if i % 3 == 0 { format!("id{}", i / 2) } else { format!("id{i}") };
+            c.insert(&id, rec("returns"), t);
+            max_len = max_len.max(c.len());
+            max_queue = max_queue.max(c.order.len());
+        }
+        assert!(max_len <= 10_000, "{max_len}");
+        assert!(max_queue <= 20_001, "{max_queue}");
+        assert_eq!(c.len(), 10_000);
+        assert!(c.get("id0", t).is_none(), "evicted long ago");
+        assert!(c.get("id999998", t).is_some(), "the newest is kept");
+        let s = c.stats();
+        assert_eq!(s.misses, 1);
+        assert_eq!(s.hits, 1);
+        assert_eq!(s.inserts, 1_000_000);
+        assert!(s.evictions >= 1_000_000 - 10_000 - 400_000);
+    }
+
+    #[test]
+    fn expired_entries_are_misses() {
+        let mut c = RecentCache::new(10, Duration::from_secs(60));
+        let t = Instant::now();
+        c.insert("a", rec("x"), t);
+        assert!(c.get("a", t + Duration::from_secs(59)).is_some());
+        assert!(c.get("a", t + Duration::from_secs(61)).is_none());
+        assert_eq!(c.stats().expired, 1);
+        assert!(c.is_empty());
+    }
+
+    #[test]
+    fn reinsert_refreshes_position() {
+        let mut c = RecentCache::new(2, Duration::from_secs(60));
+        let t = Instant::now();
+        c.insert("a", rec("x"), t);
+        c.insert("b", rec("x"), t);
+        c.insert("a", rec("y"), t);
+        c.insert("c", rec("x"), t);
+        assert!(c.get("b", t).is_none(), "b was the oldest");
+        assert_eq!(c.get("a", t).unwrap().class, "y");
+        assert!(c.get("c", t).is_some());
+    }
+}
