@@ -27,6 +27,14 @@ pub enum Command {
     Eval(EvalArgs),
     /// Show what a model file holds: classes, counts, vocabulary, top terms.
     Inspect(InspectArgs),
+    /// Check a rules file: validate it and summarise its rules, or list every problem with its line.
+    RulesCheck(RulesCheckArgs),
+    /// Test a rules file on a labelled file: per-rule fires, precision and class shares; conflicts; coverage.
+    RulesTest(RulesTestArgs),
+    /// Explain one record: the decision, the rules that fired and why, the model's top terms.
+    Explain(ExplainArgs),
+    /// Learning curve on labelled train/test files: model only against rules blended with the model.
+    RulesCurve(RulesCurveArgs),
     /// Run the streaming service: consume, score, route, review and dead-letter (see docs/service.md).
     Run(RunArgs),
     /// Measure the service end to end through a Kafka broker beside a pass-through copy.
@@ -156,6 +164,94 @@ pub struct InspectArgs {
     /// Top terms per class.
     #[arg(long, default_value_t = 10)]
     pub top: usize,
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct RulesCheckArgs {
+    /// Rules file (default: rules.path).
+    #[arg(long)]
+    pub rules: Option<PathBuf>,
+    /// The input fields rules may name, NAME or NAME=WEIGHT; repeat for several. Replaces input.fields.
+    #[arg(long = "field", value_name = "NAME[=WEIGHT]")]
+    pub fields: Vec<String>,
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct RulesTestArgs {
+    /// Rules file (default: rules.path).
+    #[arg(long)]
+    pub rules: Option<PathBuf>,
+    /// Labelled file to test on.
+    #[arg(long, short)]
+    pub input: PathBuf,
+    #[command(flatten)]
+    pub io: InputArgs,
+    /// Only records whose label is a class some rule targets.
+    #[arg(long)]
+    pub rule_classes_only: bool,
+    /// How many untouched and conflicting records to quote.
+    #[arg(long, default_value_t = 5)]
+    pub examples: usize,
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct ExplainArgs {
+    /// Rules file (default: rules.path, if set).
+    #[arg(long)]
+    pub rules: Option<PathBuf>,
+    /// Model snapshot.
+    #[arg(long, short)]
+    pub model: Option<PathBuf>,
+    /// The record as a JSON object; its text fields are input.fields.
+    #[arg(long, conflicts_with = "text")]
+    pub record: Option<String>,
+    /// The record as plain text, read as the first input field.
+    #[arg(long)]
+    pub text: Option<String>,
+    /// Input fields, NAME or NAME=WEIGHT; repeat for several. Replaces input.fields.
+    #[arg(long = "field", value_name = "NAME[=WEIGHT]")]
+    pub fields: Vec<String>,
+    /// Blend mode (default: rules.blend): rules_only, rules_first, model_first or takeover.
+    #[arg(long)]
+    pub blend: Option<String>,
+    /// Also list rules that found nothing.
+    #[arg(long)]
+    pub all: bool,
+    /// How many of the model's terms to show.
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct RulesCurveArgs {
+    /// Rules file (default: rules.path); its target classes are the curve's classes.
+    #[arg(long)]
+    pub rules: Option<PathBuf>,
+    /// Labelled training file (labels are drawn from it).
+    #[arg(long, short)]
+    pub input: PathBuf,
+    /// Labelled test file.
+    #[arg(long)]
+    pub test: PathBuf,
+    #[command(flatten)]
+    pub io: InputArgs,
+    /// Labels per class, comma-separated; "all" is every training record.
+    #[arg(long, value_delimiter = ',', default_value = "0,5,20,100,all")]
+    pub labels: Vec<String>,
+    /// First seed of the labelled-example choice.
+    #[arg(long, default_value_t = 42)]
+    pub seed: u64,
+    /// Number of consecutive seeds to average over.
+    #[arg(long, default_value_t = 5)]
+    pub seeds: u64,
     #[arg(long)]
     pub json: bool,
 }

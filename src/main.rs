@@ -1,6 +1,6 @@
 //! The `sieveline` binary: parse flags, load settings once, dispatch, and map errors to documented exit codes.
 //!
-//! Exit codes: 0 success; 1 runtime or I/O failure; 2 bad usage or settings;
+//! Exit codes: 0 success; 1 runtime or I/O failure; 2 bad usage, settings or rules file;
 //! 3 bad input data (with `--strict`, an unknown field, no usable rows);
 //! 4 a model file was refused (corrupt, truncated, foreign, other analyzer).
 //! `run` also exits 130 when a second SIGTERM/SIGINT cuts its drain short.
@@ -11,6 +11,7 @@ use clap::Parser;
 use sieveline::cli::{Cli, Command};
 use sieveline::commands;
 use sieveline::error::{DatasetError, SettingsError, SnapshotError};
+use sieveline::rules::RulesError;
 use sieveline::settings::Settings;
 
 fn main() -> ExitCode {
@@ -32,6 +33,10 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Classify(a) => commands::classify::run(settings, a),
         Command::Eval(a) => commands::eval::run(settings, a),
         Command::Inspect(a) => commands::inspect::run(settings, a),
+        Command::RulesCheck(a) => commands::rules_check::run(settings, a),
+        Command::RulesTest(a) => commands::rules_test::run(settings, a),
+        Command::Explain(a) => commands::explain::run(settings, a),
+        Command::RulesCurve(a) => commands::rules_curve::run(settings, a),
         Command::Run(a) => commands::run::run(settings, a),
         Command::BenchStream(a) => commands::bench_stream::run(settings, a),
     }
@@ -42,7 +47,7 @@ fn exit_code(e: &anyhow::Error) -> u8 {
         if let Some(code) = commands::run::exit_code_of(cause) {
             return code;
         }
-        if cause.is::<SettingsError>() {
+        if cause.is::<SettingsError>() || cause.is::<RulesError>() {
             return 2;
         }
         if cause.is::<SnapshotError>() {

@@ -3,7 +3,12 @@
 pub mod bench_stream;
 pub mod classify;
 pub mod eval;
+pub mod explain;
 pub mod inspect;
+pub mod rules_check;
+pub mod rules_curve;
+pub mod rules_input;
+pub mod rules_test;
 pub mod run;
 pub mod train;
 

@@ -274,7 +274,7 @@ pub fn table(r: &TestReport) -> String {
         let action = if x.guard { format!("{}!", x.action) } else { x.action.to_string() };
         let _ = writeln!(
             s,
-            "{:<wid$}  {:<6}  {:<wc$}  {:>6}  {:>9}  {}{}",
+            "{:<wid$}  {:<7}  {:<wc$}  {:>6}  {:>9}  {}{}",
             x.id,
             action,
             x.class,
