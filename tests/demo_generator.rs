@@ -315,16 +315,16 @@ fn written_files_have_the_documented_shapes() {
         );
         for (c, r) in complete.iter().zip(&raw) {
             let want: &[&str] = if c.get("replaces").is_some() {
-                &["at", "class", "fields", "id", "replaces", "reviewer"]
+                &["at", "class", "fields", "id", "replaces", "reviewer", "ts"]
             } else {
-                &["at", "class", "fields", "id", "reviewer"]
+                &["at", "class", "fields", "id", "reviewer", "ts"]
             };
             assert_eq!(keys(c), want);
             assert_eq!(
                 keys(r),
                 want.iter()
                     .copied()
-                    .filter(|k| *k != "fields" && *k != "reviewer")
+                    .filter(|k| !matches!(*k, "fields" | "reviewer" | "ts"))
                     .collect::<Vec<_>>()
             );
             assert_eq!(
@@ -333,6 +333,9 @@ fn written_files_have_the_documented_shapes() {
             );
             // The fields are the record's own, unchanged.
             let rec = by_id[c["id"].as_str().unwrap()];
+            // Published just after record `at`, at its time.
+            let at = c["at"].as_u64().unwrap() as usize;
+            assert_eq!(c["ts"], records[at]["ts"]);
             for (f, v) in c["fields"].as_object().unwrap() {
                 assert_eq!(&rec[f], v);
             }
@@ -563,5 +566,34 @@ fn committed_samples_are_exactly_what_the_generator_writes_for_their_manifest() 
         let committed = fs::read(samples.join(name))
             .unwrap_or_else(|e| panic!("demo-stream/{}: {e}", name.to_string_lossy()));
         assert!(fs::read(&p).unwrap() == committed, "demo-stream/{} is stale: regenerate with `sieveline generate --seed 7 --records 1500 --out demo-stream/`", name.to_string_lossy());
+    }
+}
+
+#[test]
+fn every_label_event_parses_under_the_learners_contract() {
+    use sieveline::learn::event::{IdOnlyLabel, LabelEvent};
+    let g = both(9, 3000);
+    for s in &g.streams {
+        for l in &s.labels {
+            let bytes = serde_json::to_vec(&write::complete_event(s, l)).unwrap();
+            let e = LabelEvent::parse(&bytes)
+                .unwrap_or_else(|e| panic!("{e}: {}", String::from_utf8_lossy(&bytes)));
+            assert_eq!(
+                (e.id.as_str(), e.class.as_str(), e.replaces.as_deref()),
+                (s.records[l.index].id.as_str(), l.class, l.replaces)
+            );
+            assert_eq!(e.weight, 1.0);
+            let fields = e.fields.expect("complete events carry the record's fields");
+            assert_eq!(
+                serde_json::to_value(&s.records[l.index].fields).unwrap(),
+                serde_json::Value::Object(fields)
+            );
+            let raw = serde_json::to_vec(&write::raw_event(s, l)).unwrap();
+            let r = IdOnlyLabel::parse(&raw).unwrap();
+            assert_eq!(
+                (r.id, r.class.as_str(), r.replaces.as_deref(), r.partition),
+                (e.id, l.class, l.replaces, None)
+            );
+        }
     }
 }

@@ -32,6 +32,8 @@ pub struct CompleteEvent<'a> {
     pub replaces: Option<&'a str>,
     pub fields: &'a Fields,
     pub at: usize,
+    /// When the label is published: the timestamp of record `at`.
+    pub ts: &'a str,
     pub reviewer: &'a str,
 }
 
@@ -61,6 +63,7 @@ pub fn complete_event<'a>(s: &'a Stream, l: &'a Label) -> CompleteEvent<'a> {
         replaces: l.replaces,
         fields: &r.fields,
         at: l.at,
+        ts: &s.records[l.at].ts,
         reviewer: l.reviewer,
     }
 }
