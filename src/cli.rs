@@ -39,6 +39,8 @@ pub enum Command {
     Run(RunArgs),
     /// Measure the service end to end through a Kafka broker beside a pass-through copy.
     BenchStream(BenchStreamArgs),
+    /// Write the demo scenario's seeded streams: records, ground truth, label events, manifest.
+    Generate(GenerateArgs),
 }
 
 /// How to read an input file.
@@ -81,8 +83,15 @@ pub struct ModelArgs {
 #[derive(Debug, Args)]
 pub struct TrainArgs {
     /// Labelled input file, or - for stdin.
-    #[arg(long, short)]
-    pub input: PathBuf,
+    #[arg(long, short, required_unless_present = "labels", conflicts_with = "labels")]
+    pub input: Option<PathBuf>,
+    /// Fold a label log instead: a JSONL file of complete label events (with corrections),
+    /// learned in file order exactly as the service folds its label topic.
+    #[arg(long, value_name = "FILE")]
+    pub labels: Option<PathBuf>,
+    /// With --labels: add classes first seen in the log instead of refusing them.
+    #[arg(long, requires = "labels")]
+    pub add_classes: bool,
     /// Where to write the model snapshot.
     #[arg(long, short)]
     pub out: PathBuf,
@@ -254,6 +263,31 @@ pub struct RulesCurveArgs {
     pub seeds: u64,
     #[arg(long)]
     pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct GenerateArgs {
+    /// Seed; the same seed writes byte-identical files.
+    #[arg(long, default_value_t = 7)]
+    pub seed: u64,
+    /// Records per stream.
+    #[arg(long, default_value_t = 20_000)]
+    pub records: usize,
+    /// Output directory (created if missing).
+    #[arg(long, short, default_value = "demo-stream")]
+    pub out: PathBuf,
+    /// Which streams: tickets, logs or both.
+    #[arg(long, default_value = "both")]
+    pub kind: String,
+    /// Phase 2 (new product line) starts at this fraction of the stream.
+    #[arg(long, default_value_t = 0.4)]
+    pub phase2_at: f64,
+    /// Phase 3 (outage) starts at this fraction of the stream.
+    #[arg(long, default_value_t = 0.7)]
+    pub phase3_at: f64,
+    /// Also write labelled training files, one per phase (record fields plus `class`).
+    #[arg(long)]
+    pub labelled: bool,
 }
 
 #[derive(Debug, Args)]

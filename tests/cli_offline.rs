@@ -146,3 +146,38 @@ fn inspect_shows_classes_counts_and_top_terms() {
     let top: Vec<&str> = v["classes"][0]["top_terms"].as_array().unwrap().iter().map(|t| t[0].as_str().unwrap()).collect();
     assert!(top.contains(&"refund") || top.contains(&"return"), "{top:?}");
 }
+
+#[test]
+fn folding_a_label_log_with_corrections_equals_training_on_the_final_labels() {
+    // A label log where one record is first labelled wrongly, then corrected with `replaces`.
+    let dir = tempfile::tempdir().unwrap();
+    let log = concat!(
+        r#"{"id":"a","class":"returns","fields":{"subject":"Refund","body":"refund the boots"}}"#, "\n",
+        r#"{"id":"b","class":"returns","fields":{"subject":"Parcel late","body":"courier lost it"}}"#, "\n",
+        r#"{"id":"c","class":"shipping","fields":{"body":"tracking stuck since 2026-01-05"}}"#, "\n",
+        r#"{"id":"b","class":"shipping","replaces":"returns","fields":{"subject":"Parcel late","body":"courier lost it"}}"#, "\n",
+        r#"{"id":"d","class":"returns","replaces":"billing","fields":{"body":"never learned as billing"}}"#, "\n",
+    );
+    let labels = write(dir.path(), "labels.jsonl", log.as_bytes());
+    let folded = dir.path().join("folded.svm");
+    let out = run_ok(&["train", "--labels", &labels, "--out", folded.to_str().unwrap()]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("folded 4 label events (1 corrections)"), "{err}");
+    assert!(err.contains("refused 1"), "the correction of something never learned is refused: {err}");
+    let fp = |p: &Path| json_stdout(&run_ok(&["inspect", "--model", p.to_str().unwrap(), "--json"]))["count_fingerprint"].clone();
+    // The label log has a "billing" class only in a refused correction; compare on the same classes.
+    let folded_v = json_stdout(&run_ok(&["inspect", "--model", folded.to_str().unwrap(), "--json"]));
+    let classes: Vec<&str> = folded_v["classes"].as_array().unwrap().iter().map(|c| c["class"].as_str().unwrap()).collect();
+    assert_eq!(classes, ["billing", "returns", "shipping"]);
+    // The same log without the wrong label and its correction: the right label learned once.
+    let log2 = concat!(
+        r#"{"id":"a","class":"returns","fields":{"subject":"Refund","body":"refund the boots"}}"#, "\n",
+        r#"{"id":"b","class":"shipping","fields":{"subject":"Parcel late","body":"courier lost it"}}"#, "\n",
+        r#"{"id":"c","class":"shipping","fields":{"body":"tracking stuck since 2026-01-05"}}"#, "\n",
+        r#"{"id":"d","class":"returns","replaces":"billing","fields":{"body":"never learned as billing"}}"#, "\n",
+    );
+    let labels2 = write(dir.path(), "labels2.jsonl", log2.as_bytes());
+    let direct = dir.path().join("direct.svm");
+    run_ok(&["train", "--labels", &labels2, "--out", direct.to_str().unwrap()]);
+    assert_eq!(fp(&folded), fp(&direct), "learn wrong + correct == learn right once");
+}

@@ -20,10 +20,14 @@ use super::{apply_model_args, input_spec, Skipped};
 
 pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
     apply_model_args(&mut settings, &args.model)?;
-    let spec = input_spec(&mut settings, &args.input, &args.io, true)?;
+    if let Some(labels) = &args.labels {
+        return train_from_labels(settings, args, labels);
+    }
+    let input = args.input.as_ref().expect("clap requires --input or --labels");
+    let spec = input_spec(&mut settings, input, &args.io, true)?;
     let analyzer = Analyzer::new(&settings.analyzer).context("analyzer patterns")?;
     let started = Instant::now();
-    let rows = dataset::open(&args.input, &spec)?;
+    let rows = dataset::open(input, &spec)?;
     let m = &settings.model;
     let params = NbParams::from_settings(m);
     // Classes are added as first seen and sorted at the end, so one pass suffices.
@@ -40,7 +44,7 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
             Ok(r) => r,
             Err(e) => {
                 if args.io.strict {
-                    return Err(DatasetError::Strict { path: args.input.display().to_string(), error: e }.into());
+                    return Err(DatasetError::Strict { path: input.display().to_string(), error: e }.into());
                 }
                 skipped.add(&e);
                 continue;
@@ -76,7 +80,7 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
         }
     }
     bar.finish_and_clear();
-    let mut model = model.ok_or_else(|| DatasetError::Empty { path: args.input.display().to_string() })?;
+    let mut model = model.ok_or_else(|| DatasetError::Empty { path: input.display().to_string() })?;
     let mut classes = model.classes().to_vec();
     classes.sort();
     model.reorder_classes(&classes)?;
@@ -100,6 +104,83 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
     if let Some(path) = &args.dump_counts {
         write_dump(path, &model, &dump_rows)?;
     }
+    Ok(())
+}
+
+/// Fold a file of complete label events, in order, with `Folder` — the same
+/// code the service runs on its learned-label topic. Classes are the sorted
+/// classes of the log (or only those of a starting point with --add-classes off).
+fn train_from_labels(mut settings: Settings, args: &TrainArgs, path: &std::path::Path) -> Result<()> {
+    use crate::learn::{FoldOutcome, Folder, UnknownClassPolicy};
+    use std::io::BufRead;
+    let _ = input_spec(&mut settings, path, &args.io, false)?;
+    let started = Instant::now();
+    let read = || -> Result<Vec<Vec<u8>>> {
+        let f = std::fs::File::open(path).with_context(|| format!("open {}", path.display()))?;
+        let mut lines = Vec::new();
+        for l in std::io::BufReader::new(f).split(b'\n') {
+            let l = l?;
+            if !l.iter().all(u8::is_ascii_whitespace) {
+                lines.push(l);
+            }
+        }
+        Ok(lines)
+    };
+    let lines = read()?;
+    let mut classes: Vec<String> = lines
+        .iter()
+        .filter_map(|l| crate::learn::LabelEvent::parse(l).ok())
+        .flat_map(|e| std::iter::once(e.class).chain(e.replaces))
+        .collect();
+    classes.sort();
+    classes.dedup();
+    if classes.is_empty() {
+        return Err(DatasetError::Empty { path: path.display().to_string() }.into());
+    }
+    let m = &settings.model;
+    let model = Model::new(
+        NbParams::from_settings(m),
+        settings.analyzer.clone(),
+        classes,
+        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
+    )?;
+    let analyzer = Analyzer::new(&settings.analyzer).context("analyzer patterns")?;
+    let policy = if args.add_classes { UnknownClassPolicy::Add } else { UnknownClassPolicy::Reject };
+    let meta0 = SnapshotMeta { label_offsets: Default::default(), created_at: String::new(), model_version: String::new(), labels_learned: 0 };
+    let mut folder = Folder::new(model, &meta0, analyzer, settings.input.fields.clone(), policy);
+    let name = format!("file:{}", path.display());
+    let mut rejected: std::collections::BTreeMap<&'static str, u64> = Default::default();
+    let mut corrections = 0u64;
+    for (i, l) in lines.iter().enumerate() {
+        match folder.apply(&name, 0, i as i64, l) {
+            FoldOutcome::Learned { corrected_from, .. } => corrections += u64::from(corrected_from.is_some()),
+            FoldOutcome::Rejected(r) => {
+                if args.io.strict {
+                    anyhow::bail!("{}: line {}: {r} (--strict)", path.display(), i + 1);
+                }
+                if rejected.values().sum::<u64>() < 5 {
+                    eprintln!("  refused line {}: {r}", i + 1);
+                }
+                *rejected.entry(r.reason()).or_default() += 1;
+            }
+            FoldOutcome::AlreadyFolded => {}
+        }
+    }
+    let labels_learned = folder.labels_learned();
+    let model = folder.into_model();
+    // A file is not the label topic: the snapshot records no topic offsets, so a
+    // service loading it folds its label topic from the start.
+    let meta = SnapshotMeta { labels_learned, ..SnapshotMeta::fresh(&model, args.model_version.clone()) };
+    let checksum = snapshot::write(&args.out, &model, &meta)?;
+    eprintln!(
+        "folded {labels_learned} label events ({corrections} corrections) in {:.2}s; refused {}: {:?}; {} classes; vocabulary {} terms",
+        started.elapsed().as_secs_f64(),
+        rejected.values().sum::<u64>(),
+        rejected,
+        model.classes().len(),
+        model.vocabulary_size()
+    );
+    eprintln!("wrote {} (version {}, checksum {}, count fingerprint {})", args.out.display(), meta.model_version, &checksum[..16], model.fingerprint());
     Ok(())
 }
 
