@@ -43,10 +43,14 @@ impl Pipeline {
 
     /// Wait until the partition has room for one more record; false if shutdown came first.
     async fn room(&self, track: &PartitionTrack, shutdown: &CancellationToken) -> bool {
+        if track.in_flight() < self.limit {
+            return true;
+        }
         loop {
             let notified = self.tracker.room().notified();
             tokio::pin!(notified);
             notified.as_mut().enable();
+            self.tracker.room().announce_waiting();
             if track.in_flight() < self.limit {
                 return true;
             }
@@ -94,6 +98,8 @@ impl Pipeline {
     /// Consume until shutdown.
     pub async fn run_kafka(&self, consumer: &SourceConsumer, shutdown: &CancellationToken) -> Result<(), ServiceError> {
         let mut scratch = RouteScratch::default();
+        // Partition handles by partition number, re-fetched after a revoke closes them.
+        let mut cache: Vec<Option<Arc<PartitionTrack>>> = Vec::new();
         loop {
             let msg = tokio::select! {
                 biased;
@@ -108,7 +114,7 @@ impl Pipeline {
                     continue;
                 }
             };
-            let track = self.tracker.get(msg.topic(), msg.partition());
+            let track = self.cached_track(&mut cache, msg.topic(), msg.partition());
             if !self.room(&track, shutdown).await {
                 break;
             }
@@ -128,6 +134,21 @@ impl Pipeline {
             self.process(&track, &rec, &mut scratch).await?;
         }
         Ok(())
+    }
+
+    fn cached_track(&self, cache: &mut Vec<Option<Arc<PartitionTrack>>>, topic: &str, partition: i32) -> Arc<PartitionTrack> {
+        let i = partition.max(0) as usize;
+        if let Some(Some(t)) = cache.get(i) {
+            if t.topic == topic && !t.is_closed() {
+                return t.clone();
+            }
+        }
+        let t = self.tracker.get(topic, partition);
+        if cache.len() <= i {
+            cache.resize(i + 1, None);
+        }
+        cache[i] = Some(t.clone());
+        t
     }
 
     /// Read lines until the end of input or shutdown. Offsets are 0-based line indexes;
@@ -175,6 +196,7 @@ impl Pipeline {
             let notified = self.tracker.room().notified();
             tokio::pin!(notified);
             notified.as_mut().enable();
+            self.tracker.room().announce_waiting();
             if self.tracker.in_flight() == 0 {
                 return true;
             }

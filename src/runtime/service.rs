@@ -27,6 +27,9 @@ use crate::runtime::router::Router;
 use crate::runtime::watermark::{NoOffsets, OffsetSink, Tracker};
 use crate::settings::{Settings, SinkKind, SourceKind};
 
+/// How often advanced watermarks are stored for the next automatic commit.
+const OFFSET_STORE_INTERVAL: Duration = Duration::from_millis(20);
+
 type RetryChannel = (
     tokio::sync::mpsc::UnboundedSender<crate::io::kafka::producer::Failed>,
     tokio::sync::mpsc::UnboundedReceiver<crate::io::kafka::producer::Failed>,
@@ -186,9 +189,21 @@ impl Service {
                 consumer
                     .subscribe(&topics)
                     .map_err(|e| ServiceError::Kafka { what: format!("subscribe to {topics:?}"), source: e })?;
+                // Watermarks reach the consumer's offset store on a short interval, not per ack.
+                let (t2, stop) = (tracker.clone(), stop_aux.clone());
+                tasks.spawn(async move {
+                    let mut tick = tokio::time::interval(OFFSET_STORE_INTERVAL);
+                    loop {
+                        tokio::select! {
+                            _ = stop.cancelled() => return,
+                            _ = tick.tick() => t2.store_advanced(),
+                        }
+                    }
+                });
                 let pipeline = make_pipeline(tracker.clone());
                 let looped = pipeline.run_kafka(&consumer, &shutdown).await;
                 let drained = self.finish(&pipeline, &sink, drain_limit).await;
+                tracker.store_advanced();
                 let tpl = watermarks(&tracker);
                 if tpl.count() > 0 {
                     commit_counted(consumer.as_ref(), &tpl, &self.metrics);

@@ -1,6 +1,7 @@
 //! Per-partition offset watermarks: records begin in offset order, acks arrive in any order, and only the highest offset below which every record is acknowledged may be stored or committed.
 
 use std::collections::{HashMap, VecDeque};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Condvar, Mutex};
 use std::time::{Duration, Instant};
 
@@ -26,6 +27,8 @@ struct State {
     acked_ahead: usize,
     /// Next offset to resume from: every record below it is acknowledged.
     watermark: Option<i64>,
+    /// The watermark last handed to the offset sink.
+    stored: Option<i64>,
     /// Set on revoke: late acks are ignored and nothing more is stored.
     closed: bool,
 }
@@ -36,11 +39,44 @@ pub struct PartitionTrack {
     pub partition: i32,
     state: Mutex<State>,
     drained: Condvar,
-    room: Arc<Notify>,
+    room: Arc<Room>,
     offsets: Arc<dyn OffsetSink>,
 }
 
+/// Wakes the record loop (or the drain) when an ack frees room; acks only pay for
+/// the wake-up when someone announced it is waiting.
+pub struct Room {
+    notify: Notify,
+    waiting: AtomicBool,
+}
+
+impl Room {
+    fn new() -> Room {
+        Room { notify: Notify::new(), waiting: AtomicBool::new(false) }
+    }
+
+    /// Call after enabling a `notified()` future and before re-checking the condition.
+    pub fn announce_waiting(&self) {
+        self.waiting.store(true, Ordering::SeqCst);
+    }
+
+    pub fn notified(&self) -> tokio::sync::futures::Notified<'_> {
+        self.notify.notified()
+    }
+
+    fn wake(&self) {
+        if self.waiting.swap(false, Ordering::SeqCst) {
+            self.notify.notify_waiters();
+        }
+    }
+}
+
 impl PartitionTrack {
+    /// True once the partition was revoked; a cached handle must be fetched again.
+    pub fn is_closed(&self) -> bool {
+        self.state.lock().expect("watermark lock").closed
+    }
+
     /// Records begun and not yet acknowledged.
     pub fn in_flight(&self) -> usize {
         let s = self.state.lock().expect("watermark lock");
@@ -54,9 +90,10 @@ impl PartitionTrack {
         s.pending.push_back((offset, false));
     }
 
-    /// Acknowledge `offset`; advances the watermark over every contiguous ack and stores it.
+    /// Acknowledge `offset`; advances the watermark over every contiguous ack
+    /// (handed to the offset sink by the next `Tracker::store_advanced`).
     pub fn ack(&self, offset: i64) {
-        let stored = {
+        {
             let mut s = self.state.lock().expect("watermark lock");
             if s.closed {
                 return;
@@ -79,12 +116,23 @@ impl PartitionTrack {
             if s.pending.is_empty() {
                 self.drained.notify_all();
             }
-            advanced
-        };
-        if let Some(next) = stored {
-            self.offsets.store(&self.topic, self.partition, next);
         }
-        self.room.notify_waiters();
+        self.room.wake();
+    }
+
+    /// Hand the watermark to the offset sink if it moved since last time.
+    fn store_if_advanced(&self) {
+        let next = {
+            let mut s = self.state.lock().expect("watermark lock");
+            if s.closed || s.watermark == s.stored {
+                return;
+            }
+            s.stored = s.watermark;
+            s.watermark
+        };
+        if let Some(n) = next {
+            self.offsets.store(&self.topic, self.partition, n);
+        }
     }
 
     /// The offset to commit, if any record has been acknowledged.
@@ -108,25 +156,32 @@ impl PartitionTrack {
 
     fn close(&self) {
         self.state.lock().expect("watermark lock").closed = true;
-        self.room.notify_waiters();
+        self.room.notify.notify_waiters();
     }
 }
 
 /// All tracked partitions of one service instance.
 pub struct Tracker {
     parts: Mutex<HashMap<String, Vec<Option<Arc<PartitionTrack>>>>>,
-    room: Arc<Notify>,
+    room: Arc<Room>,
     offsets: Arc<dyn OffsetSink>,
 }
 
 impl Tracker {
     pub fn new(offsets: Arc<dyn OffsetSink>) -> Tracker {
-        Tracker { parts: Mutex::new(HashMap::new()), room: Arc::new(Notify::new()), offsets }
+        Tracker { parts: Mutex::new(HashMap::new()), room: Arc::new(Room::new()), offsets }
     }
 
-    /// Woken whenever an ack frees room in some partition.
-    pub fn room(&self) -> &Arc<Notify> {
+    /// Woken when an ack frees room in some partition (after `announce_waiting`).
+    pub fn room(&self) -> &Arc<Room> {
         &self.room
+    }
+
+    /// Store every watermark that moved (called on a short interval, and before commits).
+    pub fn store_advanced(&self) {
+        for t in self.all() {
+            t.store_if_advanced();
+        }
     }
 
     /// The track of a partition, created fresh if it is not tracked.
@@ -207,10 +262,13 @@ mod tests {
         assert_eq!(p.in_flight(), 2);
         p.ack(10);
         assert_eq!(p.watermark(), Some(11));
+        tracker.store_advanced();
         p.ack(11);
         // 13 was never begun (a gap in offsets, e.g. a compacted record): 14 is next.
         assert_eq!(p.watermark(), Some(15));
         assert_eq!(p.in_flight(), 0);
+        tracker.store_advanced();
+        tracker.store_advanced(); // nothing moved: nothing stored again
         assert_eq!(*stored.0.lock().unwrap(), vec![("in".into(), 2, 11), ("in".into(), 2, 15)]);
         p.ack(11); // duplicate acks are harmless
         assert_eq!(p.watermark(), Some(15));
