@@ -98,6 +98,9 @@ pub fn run(settings: Settings, args: &BenchStreamArgs) -> Result<()> {
     sl.source.topics = vec![latency_in.clone()];
     sl.kafka.group_id = format!("{prefix}-latency");
     let (lat, achieved) = rt.block_on(latency_run(sl, &brokers, &latency_in, args))?;
+    let pass_in = format!("{prefix}.latency-pass-in");
+    rt.block_on(create_topics(&s, std::slice::from_ref(&pass_in), args.partitions))?;
+    let pass_lat = rt.block_on(pass_through_latency(&s, &brokers, &pass_in, &topics[..CLASSES.len()], decision_bytes, args))?;
     let pass = median(&mut pass_rates.clone());
     let svc = median(&mut svc_rates.clone());
     let report = json!({
@@ -117,6 +120,8 @@ pub fn run(settings: Settings, args: &BenchStreamArgs) -> Result<()> {
             "p50_ms": quantile(&lat, 0.50) * 1000.0,
             "p99_ms": quantile(&lat, 0.99) * 1000.0,
             "max_ms": lat.last().copied().unwrap_or(0.0) * 1000.0,
+            "passthrough_p50_ms": quantile(&pass_lat, 0.50) * 1000.0,
+            "passthrough_p99_ms": quantile(&pass_lat, 0.99) * 1000.0,
         },
         "brokers": brokers,
     });
@@ -257,14 +262,19 @@ fn produce_all(brokers: &str, topic: &str, lines: &[Vec<u8>]) -> Result<()> {
     Ok(())
 }
 
-/// Counts acks; a failed delivery aborts the bench.
-struct CountAcks(Arc<AtomicUsize>);
+/// Counts acks (a failed one is reported) and, in the latency run, records input timestamp → ack.
+struct CountAcks(Arc<AtomicUsize>, Option<Arc<Mutex<Vec<f64>>>>);
 impl ClientContext for CountAcks {}
 impl ProducerContext for CountAcks {
-    type DeliveryOpaque = ();
-    fn delivery(&self, r: &DeliveryResult<'_>, _: ()) {
+    /// The input record's timestamp, milliseconds.
+    type DeliveryOpaque = usize;
+    fn delivery(&self, r: &DeliveryResult<'_>, input_ms: usize) {
         if let Err((e, _)) = r {
             eprintln!("bench: pass-through delivery failed: {e}");
+        }
+        if let Some(lat) = &self.1 {
+            let secs = (crate::runtime::now_ms() - input_ms as i64).max(0) as f64 / 1000.0;
+            lat.lock().expect("latency lock").push(secs);
         }
         self.0.fetch_add(1, Ordering::Relaxed);
     }
@@ -276,8 +286,19 @@ async fn pass_through(s: &Settings, input: &str, outs: &[String], n: usize, size
     cc.set("group.id", group);
     let consumer: StreamConsumer = cc.create()?;
     consumer.subscribe(&[input])?;
+    pass_through_loop(s, consumer, outs, n, size, None).await
+}
+
+async fn pass_through_loop(
+    s: &Settings,
+    consumer: StreamConsumer,
+    outs: &[String],
+    n: usize,
+    size: usize,
+    lat: Option<Arc<Mutex<Vec<f64>>>>,
+) -> Result<f64> {
     let acked = Arc::new(AtomicUsize::new(0));
-    let producer: ThreadedProducer<CountAcks> = producer_config(s).create_with_context(CountAcks(acked.clone()))?;
+    let producer: ThreadedProducer<CountAcks> = producer_config(s).create_with_context(CountAcks(acked.clone(), lat))?;
     let mut first = None;
     let mut payload = Vec::with_capacity(size);
     for i in 0..n {
@@ -294,7 +315,8 @@ async fn pass_through(s: &Settings, input: &str, outs: &[String], n: usize, size
             .insert(Header { key: "sieveline.source.topic", value: Some(m.topic()) })
             .insert(Header { key: "sieveline.source.partition", value: Some(p.as_str()) })
             .insert(Header { key: "sieveline.source.offset", value: Some(o.as_str()) });
-        let mut rec = BaseRecord::to(&outs[i % outs.len()]).payload(&payload[..]).headers(headers);
+        let input_ms = m.timestamp().to_millis().unwrap_or(0).max(0) as usize;
+        let mut rec = BaseRecord::with_opaque_to(&outs[i % outs.len()], input_ms).payload(&payload[..]).headers(headers);
         if let Some(k) = m.key() {
             rec = rec.key(k);
         }
@@ -346,24 +368,29 @@ async fn service_throughput(s: Settings, n: usize) -> Result<f64> {
     Ok(n as f64 / secs)
 }
 
-/// Offer `args.rate` records/s for `args.latency_secs` to a running service; sorted latencies (s) and the achieved rate.
-async fn latency_run(s: Settings, brokers: &str, topic: &str, args: &BenchStreamArgs) -> Result<(Vec<f64>, f64)> {
-    let mut service = Service::new(s)?;
-    let lat = Arc::new(Mutex::new(Vec::with_capacity((args.rate * args.latency_secs) as usize)));
-    let l2 = lat.clone();
-    service.set_latency_hook(Arc::new(move |secs| l2.lock().expect("latency lock").push(secs)));
-    let metrics = service.metrics();
-    let ready = service.readiness();
-    let token = CancellationToken::new();
-    let handle = tokio::spawn(service.run(token.clone()));
-    while !ready.ready() {
-        tokio::time::sleep(Duration::from_millis(20)).await;
+/// The same offered load through the pass-through (partitions assigned directly, so no group join), sorted latencies (s).
+async fn pass_through_latency(s: &Settings, brokers: &str, topic: &str, outs: &[String], size: usize, args: &BenchStreamArgs) -> Result<Vec<f64>> {
+    let consumer: StreamConsumer = consumer_config(s).create()?;
+    let mut tpl = rdkafka::TopicPartitionList::new();
+    for p in 0..args.partitions {
+        tpl.add_partition_offset(topic, p, rdkafka::Offset::Beginning)?;
     }
-    tokio::time::sleep(Duration::from_millis(500)).await;
+    consumer.assign(&tpl)?;
+    let lat = Arc::new(Mutex::new(Vec::new()));
     let total = (args.rate * args.latency_secs) as usize;
+    let feeder = spawn_feeder(brokers, topic, total, args);
+    pass_through_loop(s, consumer, outs, total, size, Some(lat.clone())).await?;
+    feeder.await??;
+    let mut v = std::mem::take(&mut *lat.lock().expect("latency lock"));
+    v.sort_by(|a, b| a.total_cmp(b));
+    Ok(v)
+}
+
+/// Produce `total` lines at `args.rate` records/s on a blocking thread; returns the achieved rate.
+fn spawn_feeder(brokers: &str, topic: &str, total: usize, args: &BenchStreamArgs) -> tokio::task::JoinHandle<Result<f64>> {
     let lines = generate_lines(total, args.record_bytes, 2);
     let (b, t, rate) = (brokers.to_string(), topic.to_string(), args.rate);
-    let feeder = tokio::task::spawn_blocking(move || -> Result<f64> {
+    tokio::task::spawn_blocking(move || -> Result<f64> {
         let p = plain_producer(&b)?;
         let start = Instant::now();
         for (i, l) in lines.iter().enumerate() {
@@ -379,14 +406,51 @@ async fn latency_run(s: Settings, brokers: &str, topic: &str, args: &BenchStream
         let achieved = lines.len() as f64 / start.elapsed().as_secs_f64();
         p.flush(Duration::from_secs(60))?;
         Ok(achieved)
-    });
-    let achieved = feeder.await??;
+    })
+}
+
+/// Offer `args.rate` records/s for `args.latency_secs` to a running service; sorted latencies (s) and the achieved rate.
+async fn latency_run(s: Settings, brokers: &str, topic: &str, args: &BenchStreamArgs) -> Result<(Vec<f64>, f64)> {
+    let mut service = Service::new(s)?;
+    let lat: Arc<Mutex<Vec<(f64, f64)>>> = Arc::new(Mutex::new(Vec::with_capacity((args.rate * args.latency_secs) as usize)));
+    let l2 = lat.clone();
+    let t0 = Instant::now();
+    service.set_latency_hook(Arc::new(move |secs| l2.lock().expect("latency lock").push((t0.elapsed().as_secs_f64(), secs))));
+    let metrics = service.metrics();
+    let ready = service.readiness();
+    let token = CancellationToken::new();
+    let handle = tokio::spawn(service.run(token.clone()));
+    while !ready.ready() {
+        tokio::time::sleep(Duration::from_millis(20)).await;
+    }
+    tokio::time::sleep(Duration::from_millis(500)).await;
+    let total = (args.rate * args.latency_secs) as usize;
+    let achieved = spawn_feeder(brokers, topic, total, args).await??;
     while outputs(&metrics) < total as u64 {
         tokio::time::sleep(Duration::from_millis(5)).await;
     }
     token.cancel();
     handle.await??;
-    let mut v = std::mem::take(&mut *lat.lock().expect("latency lock"));
+    let timed = std::mem::take(&mut *lat.lock().expect("latency lock"));
+    // p99 per second of the run, to show where the tail sits.
+    let start = timed.first().map(|x| x.0).unwrap_or(0.0);
+    let mut per_sec: Vec<Vec<f64>> = Vec::new();
+    for &(at, l) in &timed {
+        let i = (at - start) as usize;
+        if per_sec.len() <= i {
+            per_sec.resize(i + 1, Vec::new());
+        }
+        per_sec[i].push(l);
+    }
+    let p99s: Vec<String> = per_sec
+        .iter_mut()
+        .map(|v| {
+            v.sort_by(|a, b| a.total_cmp(b));
+            format!("{:.0}", quantile(v, 0.99) * 1000.0)
+        })
+        .collect();
+    eprintln!("bench: latency p99 per second (ms): {}", p99s.join(" "));
+    let mut v: Vec<f64> = timed.into_iter().map(|x| x.1).collect();
     v.sort_by(|a, b| a.total_cmp(b));
     Ok((v, achieved))
 }
