@@ -36,4 +36,6 @@ if [ -z "${SIEVELINE_TEST_BROKERS:-}" ]; then
 fi
 
 cargo build --release --locked --bins
-cargo test --release --locked --all-targets -- --test-threads="${SIEVELINE_TEST_THREADS:-2}"
+cargo test --release --locked --lib --bins --tests -- --test-threads="${SIEVELINE_TEST_THREADS:-2}"
+# Benchmarks run once each as a smoke test (criterion's test mode); figures come from `cargo bench`.
+cargo test --release --locked --benches
