@@ -39,6 +39,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::RulesCurve(a) => commands::rules_curve::run(settings, a),
         Command::Run(a) => commands::run::run(settings, a),
         Command::BenchStream(a) => commands::bench_stream::run(settings, a),
+        Command::Generate(a) => commands::generate::run(a),
     }
 }
 

@@ -4,6 +4,7 @@ pub mod bench_stream;
 pub mod classify;
 pub mod eval;
 pub mod explain;
+pub mod generate;
 pub mod inspect;
 pub mod rules_check;
 pub mod rules_curve;
