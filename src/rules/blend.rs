@@ -51,6 +51,12 @@ pub struct DecideWork {
     pub rules: MatchScratch,
     /// After a model decision: the per-class log scores with boosts added.
     pub score: ScoreScratch,
+    /// Rule-set class index → model class index (checked before use).
+    class_map: Vec<u32>,
+    /// The fired rules of the last record, resolved, in precedence order.
+    pub fired: Vec<Fired>,
+    /// Summed boost per boosted model class.
+    deltas: Vec<(usize, f64)>,
 }
 
 impl Decider {
@@ -95,15 +101,22 @@ impl Decider {
         w: &mut DecideWork,
     ) -> Decision {
         let usable = model.filter(|m| !m.is_empty());
-        let fired: &[u32] = match rules {
-            Some(r) if !r.is_empty() => r.matches(terms, fields, &mut w.rules),
-            _ => &[],
-        };
-        // `fired` is empty unless `rules` is a set, so this never panics.
+        let DecideWork { rules: ms, score, class_map, fired: info, deltas } = w;
+        info.clear();
+        if let Some(set) = rules.filter(|r| !r.is_empty()) {
+            // Each fired rule is resolved once: its class in the model, and whether it is active.
+            for &i in set.matches(terms, fields, ms) {
+                let r = set.rule(i);
+                let class = usable.and_then(|m| model_class(class_map, m, r));
+                let active = r.guard
+                    || self.blend != BlendMode::Takeover
+                    || class.map_or(0.0, |c| usable.expect("class implies model").doc_counts()[c])
+                        < self.takeover_labels;
+                info.push(Fired { rule: i, class, active });
+            }
+        }
+        // `info` is empty unless `rules` is a set, so this never panics.
         let rule = |i: u32| -> &Rule { rules.expect("fired rules come from a set").rule(i) };
-        let active = |r: &Rule| -> bool {
-            r.guard || self.blend != BlendMode::Takeover || labels_for(usable, &r.class) < self.takeover_labels
-        };
         let rule_decision = |r: &Rule, confidence: f64| Decision {
             id: id.clone(),
             class: r.class.clone(),
@@ -114,16 +127,16 @@ impl Decider {
             model_version: model_version.to_string(),
             top_terms: Vec::new(),
         };
-        let review_rule = fired.iter().map(|&i| rule(i)).find(|r| r.action == Action::Review && active(r));
+        let review_rule = info.iter().map(|f| (rule(f.rule), f)).find(|(r, f)| r.action == Action::Review && f.active);
         let review_of = |d: Option<ReviewReason>| -> Option<ReviewReason> {
             match review_rule {
-                Some(r) => Some(ReviewReason::Rule { id: r.id.clone() }),
+                Some((r, _)) => Some(ReviewReason::Rule { id: r.id.clone() }),
                 None => d,
             }
         };
 
         // 1. Guards that assign.
-        if let Some(g) = fired.iter().map(|&i| rule(i)).find(|r| r.guard && r.action == Action::Assign) {
+        if let Some(g) = info.iter().map(|f| rule(f.rule)).find(|r| r.guard && r.action == Action::Assign) {
             let mut d = rule_decision(g, 1.0);
             d.review = review_of(None);
             return d;
@@ -134,7 +147,9 @@ impl Decider {
             BlendMode::ModelFirst => usable.is_none(),
         };
         if rules_decide {
-            if let Some(a) = fired.iter().map(|&i| rule(i)).find(|r| r.action == Action::Assign && active(r)) {
+            if let Some((a, _)) =
+                info.iter().map(|f| (rule(f.rule), f)).find(|(r, f)| r.action == Action::Assign && f.active)
+            {
                 let mut d = rule_decision(a, 1.0);
                 d.review = review_of(None);
                 return d;
@@ -142,37 +157,30 @@ impl Decider {
         }
         // 3. The model, with boosts.
         if let (Some(m), true) = (usable, self.blend != BlendMode::RulesOnly) {
-            let base = m.score(&terms.bag, &mut w.score);
+            let base = m.score(&terms.bag, score);
             let mut scored = base;
-            let mut boosted = false;
-            for &i in fired {
-                let r = rule(i);
-                if !active(r) {
-                    continue;
-                }
-                let amount = self.boost_of(r);
-                if amount == 0.0 {
-                    continue;
-                }
-                if let Some(c) = m.class_index(&r.class) {
-                    w.score.scores[c] += amount;
-                    boosted = true;
+            deltas.clear();
+            for f in info.iter().filter(|f| f.active) {
+                let amount = self.boost_of(rule(f.rule));
+                if let (Some(c), true) = (f.class, amount != 0.0) {
+                    match deltas.iter_mut().find(|d| d.0 == c) {
+                        Some(d) => d.1 += amount,
+                        None => deltas.push((c, amount)),
+                    }
                 }
             }
             let mut decided_by = DecidedBy::Model;
-            if boosted {
-                scored = rescore(&w.score.scores, base);
+            if !deltas.is_empty() {
+                scored = rescore(&mut score.scores, deltas, base);
                 if scored.best != base.best {
-                    if let Some(r) =
-                        self.credit(fired, rules.expect("boosts come from a set"), m, scored.best, base.best, &active)
-                    {
-                        decided_by = DecidedBy::Rule(r.id.clone());
+                    if let Some(i) = self.credit(info, &rule, scored.best, base.best) {
+                        decided_by = DecidedBy::Rule(rule(i).id.clone());
                     }
                 }
             }
             let class = m.classes()[scored.best].clone();
             let review = review_of(self.policy.check(&class, scored.confidence, scored.margin));
-            let top_terms = m.explain(&terms.bag, &w.score, &scored, self.explain_terms);
+            let top_terms = m.explain(&terms.bag, score, &scored, self.explain_terms);
             return Decision {
                 id,
                 class,
@@ -185,7 +193,7 @@ impl Decider {
             };
         }
         // 4. A review rule's suggestion, or nobody.
-        if let Some(r) = review_rule {
+        if let Some((r, _)) = review_rule {
             let mut d = rule_decision(r, 0.0);
             d.review = review_of(None);
             return d;
@@ -214,26 +222,14 @@ impl Decider {
 
     /// The rule that moved the winner: the largest boost to the new winner, else
     /// the largest penalty on the old one.
-    fn credit<'r>(
-        &self,
-        fired: &[u32],
-        set: &'r RuleSet,
-        m: &Model,
-        best: usize,
-        old: usize,
-        active: &dyn Fn(&Rule) -> bool,
-    ) -> Option<&'r Rule> {
-        let mut up: Option<(&Rule, f64)> = None;
-        let mut down: Option<(&Rule, f64)> = None;
-        for &i in fired {
-            let r = set.rule(i);
-            if !active(r) {
-                continue;
-            }
-            let x = self.boost_of(r);
-            match m.class_index(&r.class) {
-                Some(c) if c == best && x > 0.0 && up.is_none_or(|(_, y)| x > y) => up = Some((r, x)),
-                Some(c) if c == old && x < 0.0 && down.is_none_or(|(_, y)| x < y) => down = Some((r, x)),
+    fn credit<'r>(&self, info: &[Fired], rule: &dyn Fn(u32) -> &'r Rule, best: usize, old: usize) -> Option<u32> {
+        let mut up: Option<(u32, f64)> = None;
+        let mut down: Option<(u32, f64)> = None;
+        for f in info.iter().filter(|f| f.active) {
+            let x = self.boost_of(rule(f.rule));
+            match f.class {
+                Some(c) if c == best && x > 0.0 && up.is_none_or(|(_, y)| x > y) => up = Some((f.rule, x)),
+                Some(c) if c == old && x < 0.0 && down.is_none_or(|(_, y)| x < y) => down = Some((f.rule, x)),
                 _ => {}
             }
         }
@@ -241,15 +237,57 @@ impl Decider {
     }
 }
 
-fn labels_for(model: Option<&Model>, class: &str) -> f64 {
-    model.and_then(|m| m.class_index(class).map(|c| m.doc_counts()[c])).unwrap_or(0.0)
+/// A fired rule, resolved once per record.
+#[derive(Debug, Clone, Copy)]
+pub struct Fired {
+    pub rule: u32,
+    /// The rule's class in the model, if the model has it.
+    pub class: Option<usize>,
+    /// False for a non-guard rule whose class the model has taken over.
+    pub active: bool,
 }
 
-/// Winner, runner-up, posterior and margin of adjusted log scores.
-fn rescore(scores: &[f64], base: Scored) -> Scored {
+const NOT_CACHED: u32 = u32::MAX;
+
+/// The model's index of a rule's class, through a per-worker cache keyed by the
+/// rule set's class index. A cached index is used only after checking that the
+/// model's class at it is the rule's class (one string compare), so a swapped
+/// model or rule set can never give a stale answer; a miss falls back to the
+/// model's linear search and refreshes the cache.
+fn model_class(cache: &mut Vec<u32>, m: &Model, r: &Rule) -> Option<usize> {
+    let ci = r.class_idx as usize;
+    if cache.len() <= ci {
+        cache.resize(ci + 1, NOT_CACHED);
+    }
+    let c = cache[ci];
+    if c != NOT_CACHED && m.classes().get(c as usize).is_some_and(|x| *x == r.class) {
+        return Some(c as usize);
+    }
+    let found = m.class_index(&r.class);
+    cache[ci] = found.map_or(NOT_CACHED, |x| x as u32);
+    found
+}
+
+/// Add the boosts to the scores, then winner, runner-up, posterior and margin.
+///
+/// The log-sum-exp is updated from the model's own instead of summed over every
+/// class again: with M = ln Σ exp(sᵢ) before the boosts (recovered as
+/// s_best − ln confidence), the sum after them is
+/// exp(M) · (1 + Σ_c exp(s_c − M) · (exp(δ_c) − 1)) over the boosted classes c.
+/// When boosts take away most of the mass (that sum under 0.01), cancellation
+/// would cost precision and the full sum is taken instead.
+fn rescore(scores: &mut [f64], deltas: &[(usize, f64)], base: Scored) -> Scored {
+    let m = scores[base.best] - base.confidence.ln();
+    let mut rel = 1.0;
+    for &(c, d) in deltas {
+        if scores[c].is_finite() {
+            rel += (scores[c] - m).exp() * d.exp_m1();
+        }
+        scores[c] += d;
+    }
+    let lse = if m.is_finite() && rel > 0.01 { m + rel.ln() } else { log_sum_exp(scores) };
     let (best, runner_up) = top_two(scores);
-    let lse = log_sum_exp(scores);
-    let confidence = if scores[best].is_finite() { (scores[best] - lse).exp() } else { 0.0 };
+    let confidence = if scores[best].is_finite() { (scores[best] - lse).exp().min(1.0) } else { 0.0 };
     let margin = match runner_up {
         Some(r) if scores[r].is_finite() => scores[best] - scores[r],
         _ => f64::INFINITY,
@@ -259,4 +297,76 @@ fn rescore(scores: &[f64], base: Scored) -> Scored {
 
 fn round9(x: f64) -> f64 {
     (x * 1e9).round() / 1e9
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::eval::folds::SplitMix64;
+
+    fn base_of(scores: &[f64]) -> Scored {
+        let (best, runner_up) = top_two(scores);
+        let lse = log_sum_exp(scores);
+        Scored {
+            best,
+            runner_up,
+            confidence: (scores[best] - lse).exp(),
+            margin: 0.0,
+            known_weight: 0.0,
+            total_weight: 0.0,
+            known_terms: 0,
+            total_terms: 0,
+        }
+    }
+
+    #[test]
+    fn incremental_rescore_equals_a_full_log_sum_exp() {
+        let mut rng = SplitMix64::new(3);
+        for trial in 0..2000 {
+            let k = 2 + (trial % 80);
+            let scores: Vec<f64> = (0..k).map(|_| -200.0 + 150.0 * rng.unit()).collect();
+            let base = base_of(&scores);
+            let n = 1 + trial % 4;
+            let deltas: Vec<(usize, f64)> =
+                (0..n).map(|i| ((rng.below(k as u64) as usize + i) % k, -20.0 + 40.0 * rng.unit())).collect();
+            let mut merged: Vec<(usize, f64)> = Vec::new();
+            for &(c, d) in &deltas {
+                match merged.iter_mut().find(|x| x.0 == c) {
+                    Some(x) => x.1 += d,
+                    None => merged.push((c, d)),
+                }
+            }
+            let mut full = scores.clone();
+            for &(c, d) in &merged {
+                full[c] += d;
+            }
+            let want = base_of(&full);
+            let mut s = scores.clone();
+            let got = rescore(&mut s, &merged, base);
+            assert_eq!(s, full);
+            assert_eq!((got.best, got.runner_up), (want.best, want.runner_up));
+            assert!(
+                (got.confidence - want.confidence).abs() < 1e-9,
+                "trial {trial}: {} vs {}",
+                got.confidence,
+                want.confidence
+            );
+        }
+    }
+
+    #[test]
+    fn rescore_falls_back_when_a_penalty_removes_almost_all_mass() {
+        // The best class holds nearly all the mass and is pushed down by 50 log-odds.
+        let scores = vec![0.0, -60.0, -61.0];
+        let base = base_of(&scores);
+        let mut s = scores.clone();
+        let got = rescore(&mut s, &[(0, -50.0)], base);
+        let want = base_of(&s);
+        assert_eq!(got.best, 0);
+        assert!((got.confidence - want.confidence).abs() < 1e-12, "{} vs {}", got.confidence, want.confidence);
+        let mut s = scores.clone();
+        let got = rescore(&mut s, &[(0, -70.0)], base);
+        assert_eq!(got.best, 1);
+        assert!((got.confidence - base_of(&s).confidence).abs() < 1e-12);
+    }
 }

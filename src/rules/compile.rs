@@ -197,6 +197,7 @@ impl<'a> Builder<'a> {
             note: r.note.as_ref().map(|n| n.get_ref().clone()),
             line: id_line,
             conds,
+            class_idx: 0,
         });
     }
 
@@ -377,7 +378,7 @@ impl<'a> Builder<'a> {
     }
 
     fn finish(self, text: &str, source: &str) -> RuleSet {
-        let Builder { rules, conds, items, regexes, regex_conds, analyzer, fields, .. } = self;
+        let Builder { mut rules, conds, items, regexes, regex_conds, analyzer, fields, .. } = self;
         // The term index: first token → postings, grouped so one lookup finds them all.
         let mut by_token: FxHashMap<Box<str>, Vec<Posting>> = FxHashMap::default();
         for (i, item) in items.iter().enumerate() {
@@ -400,11 +401,35 @@ impl<'a> Builder<'a> {
             postings.extend(v);
             index.insert(k, (start, postings.len() as u32));
         }
-        let regex_set = if regexes.is_empty() {
+        // A regex in a rule that also has an `any` or `all` condition is checked
+        // only for candidates whose other conditions hold (cheap tests first);
+        // the others go into one set, run per field, to find candidates at all.
+        let has_terms: Vec<bool> = rules
+            .iter()
+            .map(|r| {
+                conds[r.conds.start as usize..r.conds.end as usize]
+                    .iter()
+                    .any(|c| matches!(c.kind, CondKind::Any | CondKind::All))
+            })
+            .collect();
+        let mut deferred = vec![false; conds.len()];
+        let mut set_conds = Vec::new();
+        let mut set_patterns = Vec::new();
+        for &ci in &regex_conds {
+            let c = &conds[ci as usize];
+            if has_terms[c.rule as usize] {
+                deferred[ci as usize] = true;
+            } else {
+                set_conds.push(ci);
+                set_patterns.push(regexes[c.regex.expect("regex condition") as usize].as_str().to_string());
+            }
+        }
+        let regex_set = if set_patterns.is_empty() {
             None
         } else {
-            Some(RegexSet::new(regexes.iter().map(|r| r.as_str())).expect("each regex compiled on its own"))
+            Some(RegexSet::new(&set_patterns).expect("each regex compiled on its own"))
         };
+        let regex_conds = set_conds;
         let mut order: Vec<u32> = (0..rules.len() as u32).collect();
         order.sort_by_key(|&i| {
             let r = &rules[i as usize];
@@ -417,6 +442,9 @@ impl<'a> Builder<'a> {
         let mut classes: Vec<String> = rules.iter().map(|r| r.class.clone()).collect();
         classes.sort();
         classes.dedup();
+        for r in &mut rules {
+            r.class_idx = classes.binary_search(&r.class).expect("collected") as u32;
+        }
         RuleSet {
             source: source.to_string(),
             fingerprint: blake3::hash(text.as_bytes()).to_hex()[..16].to_string(),
@@ -430,6 +458,7 @@ impl<'a> Builder<'a> {
             regex_set,
             regexes,
             regex_conds,
+            deferred,
             rank,
             classes,
         }

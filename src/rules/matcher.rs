@@ -113,13 +113,14 @@ impl RuleSet {
                 if !m.matched_any() {
                     continue;
                 }
-                for ri in m.iter() {
-                    let ci = self.regex_conds[ri];
+                for si in m.iter() {
+                    let ci = self.regex_conds[si];
                     let c = &self.conds[ci as usize];
                     if c.field.is_some_and(|x| x != f.field) {
                         continue;
                     }
-                    let n = if c.at_least > 1 { self.regexes[ri].find_iter(f.text).count() as u32 } else { 1 };
+                    let re = &self.regexes[c.regex.expect("regex condition") as usize];
+                    let n = if c.at_least > 1 { re.find_iter(f.text).count() as u32 } else { 1 };
                     s.hit(ci, c.rule, n);
                 }
             }
@@ -129,12 +130,17 @@ impl RuleSet {
             let rule = &self.rules[r as usize];
             let ok = (rule.conds.start..rule.conds.end).all(|ci| {
                 let c = &self.conds[ci as usize];
+                if self.deferred[ci as usize] {
+                    return true;
+                }
                 let h = s.hits(ci);
                 match c.kind {
                     CondKind::None => h == 0,
                     _ => h >= c.at_least,
                 }
-            });
+            }) && (rule.conds.start..rule.conds.end)
+                .filter(|&ci| self.deferred[ci as usize])
+                .all(|ci| self.regex_holds(&self.conds[ci as usize], texts));
             if ok {
                 s.fired.push(r);
             }
@@ -142,6 +148,23 @@ impl RuleSet {
         let rank = &self.rank;
         s.fired.sort_unstable_by_key(|&r| rank[r as usize]);
         &s.fired
+    }
+
+    /// A deferred regex condition, checked on the fields in its scope.
+    fn regex_holds(&self, c: &super::ruleset::Cond, texts: &[FieldText<'_>]) -> bool {
+        let re = &self.regexes[c.regex.expect("regex condition") as usize];
+        let in_scope = texts.iter().filter(|t| c.field.is_none_or(|f| f == t.field));
+        if c.at_least <= 1 {
+            return in_scope.into_iter().any(|t| re.is_match(t.text));
+        }
+        let mut n = 0u32;
+        for t in in_scope {
+            n += re.find_iter(t.text).count() as u32;
+            if n >= c.at_least {
+                return true;
+            }
+        }
+        false
     }
 
     fn phrase_at(&self, item: u32, terms: &RecordTerms, words: &[u32], p: usize) -> bool {

@@ -52,6 +52,8 @@ pub struct Rule {
     /// Line of the rule's `id` in the file.
     pub line: usize,
     pub(crate) conds: Range<u32>,
+    /// Index of `class` in `RuleSet::classes`.
+    pub(crate) class_idx: u32,
 }
 
 /// The kind of one condition.
@@ -128,11 +130,14 @@ pub struct RuleSet {
     /// First token → range of `postings`: the one lookup per record token.
     pub(crate) index: FxHashMap<Box<str>, (u32, u32)>,
     pub(crate) postings: Vec<Posting>,
-    /// Every regex condition in one set, run once per field text.
+    /// The regex conditions of rules that have no term condition, in one set
+    /// run once per field text: for those rules a regex is what makes them candidates.
     pub(crate) regex_set: Option<RegexSet>,
     pub(crate) regexes: Vec<Regex>,
-    /// Regex index → condition.
+    /// `regex_set` index → condition.
     pub(crate) regex_conds: Vec<u32>,
+    /// Per condition: a regex checked only once the rule's cheaper conditions hold.
+    pub(crate) deferred: Vec<bool>,
     /// Precedence rank of each rule (0 first): guards, then priority, then action, then file order.
     pub(crate) rank: Vec<u32>,
     pub(crate) classes: Vec<String>,
