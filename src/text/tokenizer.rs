@@ -150,7 +150,13 @@ fn ascii_tokens<F: FnMut(&str)>(text: &str, cfg: &TokenConfig, lower: &mut Strin
 /// Letters, `_` and sentence punctuation only: split into words, fold, filter.
 #[inline]
 fn plain_words<F: FnMut(&str)>(chunk: &str, cfg: &TokenConfig, lower: &mut String, emit: &mut F) {
-    let b = chunk.as_bytes();
+    ascii_pieces(chunk, |p, n| word(p, n, cfg, lower, emit));
+}
+
+/// Call `f` with each run of word bytes (letters, digits, `_`) of ASCII text and its length.
+#[inline]
+fn ascii_pieces<'a>(text: &'a str, mut f: impl FnMut(&'a str, usize)) {
+    let b = text.as_bytes();
     let mut i = 0;
     while i < b.len() {
         while i < b.len() && CLASSES[b[i] as usize] & WORD == 0 {
@@ -161,7 +167,7 @@ fn plain_words<F: FnMut(&str)>(chunk: &str, cfg: &TokenConfig, lower: &mut Strin
             i += 1;
         }
         if s < i {
-            word(&chunk[s..i], i - s, cfg, lower, emit);
+            f(&text[s..i], i - s);
         }
     }
 }
@@ -232,37 +238,11 @@ fn part_tokens<F: FnMut(&str)>(part: &str, cfg: &TokenConfig, lower: &mut String
     };
     if !digits {
         // No digit anywhere: no piece can be a number, hex id or code.
-        let b = part.as_bytes();
-        let mut i = 0;
-        while i < b.len() {
-            while i < b.len() && CLASSES[b[i] as usize] & WORD == 0 {
-                i += 1;
-            }
-            let s = i;
-            while i < b.len() && CLASSES[b[i] as usize] & WORD != 0 {
-                i += 1;
-            }
-            if s < i {
-                word(&part[s..i], i - s, cfg, lower, emit);
-            }
-        }
+        ascii_pieces(part, |p, n| word(p, n, cfg, lower, emit));
         return;
     }
     if part.is_ascii() {
-        let b = part.as_bytes();
-        let mut i = 0;
-        while i < b.len() {
-            while i < b.len() && CLASSES[b[i] as usize] & WORD == 0 {
-                i += 1;
-            }
-            let s = i;
-            while i < b.len() && CLASSES[b[i] as usize] & WORD != 0 {
-                i += 1;
-            }
-            if s < i {
-                piece_token(&part[s..i], i - s, cfg, lower, emit);
-            }
-        }
+        ascii_pieces(part, |p, n| piece_token(p, n, cfg, lower, emit));
         return;
     }
     for piece in part.split(|c: char| !is_word_char(c)) {
