@@ -12,6 +12,7 @@ pub mod rules_input;
 pub mod rules_test;
 pub mod run;
 pub mod train;
+pub mod train_log;
 
 use std::path::Path;
 

@@ -93,6 +93,15 @@ pub fn render_line(o: &Outgoing) -> Vec<u8> {
             line.extend_from_slice(&o.payload[1..]);
             line
         }
+        OutKind::Label => {
+            let mut line = Vec::with_capacity(o.payload.len() + o.topic.len() + 40);
+            line.extend_from_slice(b"{\"destination\":");
+            serde_json::to_writer(&mut line, &o.topic).expect("string serializes");
+            line.extend_from_slice(b",\"kind\":\"label\",\"event\":");
+            line.extend_from_slice(&o.payload);
+            line.push(b'}');
+            line
+        }
         OutKind::DeadLetter { reason } => {
             let head = |n: &str| o.header(n).map(|v| String::from_utf8_lossy(v).into_owned());
             let mut v = json!({

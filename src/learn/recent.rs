@@ -18,9 +18,11 @@ pub struct CachedRecord {
     /// The analyzed terms, as scored.
     pub terms: TermBag,
     /// The class it was routed to.
-    pub class: String,
+    pub class: std::sync::Arc<str>,
     /// The input partition it came from.
     pub partition: i32,
+    /// When it was scored (Unix milliseconds).
+    pub scored_ms: i64,
 }
 
 struct Entry {
@@ -121,7 +123,7 @@ mod tests {
     use super::*;
 
     fn rec(class: &str) -> CachedRecord {
-        CachedRecord { terms: TermBag::from_pairs([("refund", 1.0)]), class: class.into(), partition: 0 }
+        CachedRecord { terms: TermBag::from_pairs([("refund", 1.0)]), class: class.into(), partition: 0, scored_ms: 0 }
     }
 
     #[test]
@@ -169,7 +171,7 @@ mod tests {
         c.insert("a", rec("y"), t);
         c.insert("c", rec("x"), t);
         assert!(c.get("b", t).is_none(), "b was the oldest");
-        assert_eq!(c.get("a", t).unwrap().class, "y");
+        assert_eq!(&*c.get("a", t).unwrap().class, "y");
         assert!(c.get("c", t).is_some());
     }
 }
