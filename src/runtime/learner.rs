@@ -316,6 +316,8 @@ impl Learner {
                 self.unpublished.push(m.timestamp_ms.unwrap_or_else(crate::clock::unix_millis));
             }
             FoldOutcome::Rejected(r) => {
+                // The offsets moved on: the next view records them.
+                self.dirty = true;
                 self.metrics.labels_rejected.with_label_values(&[r.reason()]).inc();
                 tracing::debug!("label {}/{}@{} refused: {r}", m.topic, m.partition, m.offset);
                 if let Some(tx) = &self.dead {
