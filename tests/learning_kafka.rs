@@ -207,7 +207,7 @@ fn replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     let brokers = brokers();
     let dir = test_dir("learn-replicas");
     let base = base_model(&dir);
-    let mut sc = Scenario::new("conv", &brokers, &base, &dir, 2);
+    let sc = Scenario::new("conv", &brokers, &base, &dir, 2);
     let labels_topic = format!("{}.labels", sc.prefix);
     let raw_topic = format!("{}.raw-labels", sc.prefix);
     let outs = sc.create_topics(CLASSES);
