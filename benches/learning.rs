@@ -10,7 +10,7 @@ use std::time::{Duration, Instant};
 
 use sieveline::demo::{generate, DemoConfig, Fields, Kind};
 use sieveline::io::message::Inbound;
-use sieveline::learn::{CachedRecord, RecentCache};
+use sieveline::learn::{CachedRecord, PackedTerms, RecentCache};
 use sieveline::metrics::Metrics;
 use sieveline::model::snapshot::SnapshotMeta;
 use sieveline::model::{Model, NbParams};
@@ -69,7 +69,7 @@ fn main() {
     let mut cache = RecentCache::new(capacity, Duration::from_secs(3600));
     let now = Instant::now();
     for i in 0..capacity {
-        let rec = CachedRecord { terms: bags[i % bags.len()].clone(), class: "returns".into(), partition: 0, scored_ms: 0 };
+        let rec = CachedRecord { terms: PackedTerms::pack(&bags[i % bags.len()]), class: "returns".into(), partition: 0, scored_ms: 0 };
         cache.insert(&format!("tk-{i:09}"), rec, now);
     }
     let after = rss_kib("VmRSS:");

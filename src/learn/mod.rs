@@ -16,5 +16,5 @@ pub mod resolve;
 
 pub use event::{IdOnlyLabel, LabelEvent, LabelReject, LabelSource};
 pub use fold::{FoldOutcome, Folder, UnknownClassPolicy};
-pub use recent::{CachedRecord, RecentCache, RecentStats};
+pub use recent::{CachedRecord, PackedTerms, RecentCache, RecentStats};
 pub use resolve::resolve;

@@ -4,7 +4,6 @@ use std::time::Instant;
 
 use super::event::{IdOnlyLabel, LabelEvent, LabelReject};
 use super::recent::RecentCache;
-use crate::text::bag::FeatureList;
 
 /// Join `label` with the cached terms of its record.
 ///
@@ -33,7 +32,7 @@ pub fn resolve(
         id: label.id.clone(),
         class: label.class.clone(),
         fields: None,
-        features: Some(FeatureList::from(&rec.terms)),
+        features: Some(rec.terms.features()),
         replaces: label.replaces.clone(),
         weight: label.weight,
         scored_ms: Some(rec.scored_ms),
@@ -45,13 +44,13 @@ mod tests {
     use std::time::Duration;
 
     use super::*;
-    use crate::learn::recent::CachedRecord;
+    use crate::learn::recent::{CachedRecord, PackedTerms};
     use crate::text::TermBag;
 
     fn cache() -> RecentCache {
         let mut c = RecentCache::new(4, Duration::from_secs(60));
         let terms = TermBag::from_pairs([("refund", 2.0), ("boots", 1.0), ("refund", 1.0)]);
-        c.insert("t1", CachedRecord { terms, class: "billing".into(), partition: 2, scored_ms: 1_000 }, Instant::now());
+        c.insert("t1", CachedRecord { terms: PackedTerms::pack(&terms), class: "billing".into(), partition: 2, scored_ms: 1_000 }, Instant::now());
         c
     }
 

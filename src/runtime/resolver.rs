@@ -6,7 +6,7 @@ use std::time::{Duration, Instant};
 
 use crate::io::headers as h;
 use crate::io::message::{Inbound, OutKind, Outgoing};
-use crate::learn::{resolve, CachedRecord, IdOnlyLabel, LabelReject, RecentCache};
+use crate::learn::{resolve, CachedRecord, IdOnlyLabel, PackedTerms, RecentCache};
 use crate::metrics::Metrics;
 use crate::runtime::model_view::ModelView;
 use crate::settings::{Settings, UnknownClasses};
@@ -42,7 +42,7 @@ impl Resolver {
 
     /// Keep a scored record's terms for a later id-only label.
     pub fn remember(&self, id: &str, terms: &TermBag, class: Arc<str>, partition: i32) {
-        let rec = CachedRecord { terms: terms.clone(), class, partition, scored_ms: crate::clock::unix_millis() };
+        let rec = CachedRecord { terms: PackedTerms::pack(terms), class, partition, scored_ms: crate::clock::unix_millis() };
         let mut c = self.cache.lock().expect("recent cache lock");
         c.insert(id, rec, Instant::now());
         self.metrics.recent_records.set(c.len() as i64);
@@ -59,36 +59,19 @@ impl Resolver {
             r
         });
         let mut headers: Vec<(Cow<'static, str>, Vec<u8>)> = Vec::with_capacity(5);
-        let out = match result {
-            Ok(event) => Outgoing {
-                topic: self.label_topic.clone(),
-                key: Some(event.id.clone().into_bytes()),
-                payload: event.to_json(),
-                headers: Vec::new(),
-                kind: OutKind::Label,
-            },
+        let (topic, key, body, kind) = match result {
+            Ok(event) => (self.label_topic.clone(), Some(event.id.clone().into_bytes()), event.to_json(), OutKind::Label),
             Err(r) => {
                 self.metrics.labels_rejected.with_label_values(&[r.reason()]).inc();
                 headers.push((Cow::Borrowed(h::REASON), r.reason().as_bytes().to_vec()));
                 headers.push((Cow::Borrowed(h::ERROR), r.to_string().into_bytes()));
-                Outgoing {
-                    topic: self.dead_topic.clone(),
-                    key: rec.key.map(<[u8]>::to_vec),
-                    payload: payload.to_vec(),
-                    headers: Vec::new(),
-                    kind: OutKind::DeadLetter { reason: reason_of(&r) },
-                }
+                let kind = OutKind::DeadLetter { reason: r.reason() };
+                (self.dead_topic.clone(), rec.key.map(<[u8]>::to_vec), payload.to_vec(), kind)
             }
         };
-        let mut out = out;
         headers.push((Cow::Borrowed(h::SOURCE_TOPIC), rec.topic.as_bytes().to_vec()));
         headers.push((Cow::Borrowed(h::SOURCE_PARTITION), rec.partition.to_string().into_bytes()));
         headers.push((Cow::Borrowed(h::SOURCE_OFFSET), rec.offset.to_string().into_bytes()));
-        out.headers = headers;
-        out
+        Outgoing { topic, key, payload: body, headers, kind }
     }
-}
-
-fn reason_of(r: &LabelReject) -> &'static str {
-    r.reason()
 }
