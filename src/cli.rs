@@ -41,6 +41,9 @@ pub enum Command {
     BenchStream(BenchStreamArgs),
     /// Write the demo scenario's seeded streams: records, ground truth, label events, manifest.
     Generate(GenerateArgs),
+    /// Run the whole job in process on the invented demo scenario: rules on day one, reviewers'
+    /// labels teaching the model, drift, a live status page; no broker needed.
+    Demo(DemoArgs),
 }
 
 /// How to read an input file.
@@ -302,6 +305,31 @@ pub struct GenerateArgs {
     /// Also write labelled training files, one per phase (record fields plus `class`).
     #[arg(long)]
     pub labelled: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Seed of the scenario; the same seed streams the same records and labels.
+    #[arg(long, default_value_t = 7)]
+    pub seed: u64,
+    /// Records per stream (a longer run: e.g. 30000 with --rate 1000).
+    #[arg(long, default_value_t = 6000)]
+    pub records: usize,
+    /// Records fed per second per stream (so labels and model publishes keep pace, as in a live stream).
+    #[arg(long, default_value_t = 300.0)]
+    pub rate: f64,
+    /// Which streams: tickets, logs or both (each runs its own service).
+    #[arg(long, default_value = "both")]
+    pub stream: String,
+    /// Where decisions, summaries and the demo's model files go.
+    #[arg(long, short, default_value = "target/sieveline-demo")]
+    pub out: PathBuf,
+    /// Keep the status page up after the stream ends, until Ctrl-C.
+    #[arg(long)]
+    pub keep_open: bool,
+    /// Admin port of the first stream (the next stream uses the next port); 0 picks free ports.
+    #[arg(long, default_value_t = 0)]
+    pub admin_port: u16,
 }
 
 #[derive(Debug, Args)]

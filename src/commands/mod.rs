@@ -2,6 +2,7 @@
 
 pub mod bench_stream;
 pub mod classify;
+pub mod demo;
 pub mod eval;
 pub mod explain;
 pub mod generate;

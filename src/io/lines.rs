@@ -21,6 +21,11 @@ impl LineSource {
         LineSource { name: "stdin".into(), reader: Box::new(BufReader::with_capacity(1 << 16, tokio::io::stdin())) }
     }
 
+    /// Lines from any reader (the demo feeds the pipeline through an in-process pipe).
+    pub fn from_reader(name: &str, reader: Box<dyn AsyncBufRead + Unpin + Send>) -> LineSource {
+        LineSource { name: name.to_string(), reader }
+    }
+
     pub async fn file(path: &Path) -> std::io::Result<LineSource> {
         let f = tokio::fs::File::open(path).await?;
         Ok(LineSource { name: path.display().to_string(), reader: Box::new(BufReader::with_capacity(1 << 16, f)) })
@@ -53,6 +58,11 @@ impl LineSink {
             out: Mutex::new(std::io::BufWriter::with_capacity(1 << 16, Box::new(std::io::stdout()))),
             flush_each,
         }
+    }
+
+    /// Lines to any writer (the demo reads its decisions back as they are written).
+    pub fn writer(w: Box<dyn Write + Send>, flush_each: bool) -> LineSink {
+        LineSink { out: Mutex::new(std::io::BufWriter::with_capacity(1 << 16, w)), flush_each }
     }
 
     pub fn file(path: &Path, flush_each: bool) -> std::io::Result<LineSink> {

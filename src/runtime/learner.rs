@@ -255,8 +255,10 @@ impl Learner {
                 let _ = r.send(Err("the service is stopping".into()));
             }
         }
-        if let Err(e) = self.write_snapshot(true) {
-            tracing::warn!("last snapshot: {e}");
+        if self.cfg.snapshot_path.is_some() {
+            if let Err(e) = self.write_snapshot(true) {
+                tracing::warn!("last snapshot: {e}");
+            }
         }
     }
 

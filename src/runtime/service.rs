@@ -77,6 +77,12 @@ pub struct Service {
     observer: Option<Arc<dyn LearnObserver>>,
     /// The running learner, for reloads and snapshots on request.
     learner: Arc<std::sync::OnceLock<Arc<LearnerHandle>>>,
+    /// A line source and a sink given by the embedding program (the demo), used
+    /// instead of stdin/file and stdout/file.
+    source_override: std::sync::Mutex<Option<LineSource>>,
+    sink_override: std::sync::Mutex<Option<Sink>>,
+    /// The admin endpoint's address once bound.
+    admin_addr: Arc<std::sync::OnceLock<std::net::SocketAddr>>,
 }
 
 impl Service {
@@ -111,7 +117,25 @@ impl Service {
             label_log: std::sync::Mutex::new(None),
             observer: None,
             learner: Arc::new(std::sync::OnceLock::new()),
+            source_override: std::sync::Mutex::new(None),
+            sink_override: std::sync::Mutex::new(None),
+            admin_addr: Arc::new(std::sync::OnceLock::new()),
         })
+    }
+
+    /// Read records from `source` instead of stdin or the settings' file.
+    pub fn set_line_source(&mut self, source: LineSource) {
+        *self.source_override.lock().expect("source slot") = Some(source);
+    }
+
+    /// Write outputs to `sink` instead of the settings' sink.
+    pub fn set_sink(&mut self, sink: Sink) {
+        *self.sink_override.lock().expect("sink slot") = Some(sink);
+    }
+
+    /// Where the admin endpoint listens, once `run` has bound it.
+    pub fn admin_addr(&self) -> Arc<std::sync::OnceLock<std::net::SocketAddr>> {
+        self.admin_addr.clone()
     }
 
     /// Learn from this label log instead of the one the settings name.
@@ -169,6 +193,9 @@ impl Service {
             let listener = TcpListener::bind(&s.admin.bind)
                 .await
                 .map_err(|e| ServiceError::AdminBind { addr: s.admin.bind.clone(), source: e })?;
+            if let Ok(a) = listener.local_addr() {
+                let _ = self.admin_addr.set(a);
+            }
             let addr = listener.local_addr().map(|a| a.to_string()).unwrap_or_default();
             tracing::info!("admin endpoint on http://{addr}");
             let state = AdminState {
@@ -270,7 +297,10 @@ impl Service {
             }
             SourceKind::Stdin | SourceKind::File => {
                 self.readiness.joined.store(true, Ordering::SeqCst);
-                let mut src = if s.source.kind == SourceKind::Stdin {
+                let given = self.source_override.lock().expect("source slot").take();
+                let mut src = if let Some(g) = given {
+                    g
+                } else if s.source.kind == SourceKind::Stdin {
                     LineSource::stdin()
                 } else {
                     LineSource::file(s.source.path.as_ref())
@@ -366,6 +396,9 @@ impl Service {
     async fn build_sink(&self) -> Result<(Sink, Option<RetryChannel>), ServiceError> {
         let s = &self.settings;
         let flush_each = s.source.kind == SourceKind::Kafka;
+        if let Some(given) = self.sink_override.lock().expect("sink slot").take() {
+            return Ok((given, None));
+        }
         match s.sink.kind {
             SinkKind::Stdout => Ok((Sink::Lines(LineSink::stdout(flush_each)), None)),
             SinkKind::File => {
