@@ -41,6 +41,8 @@ pub enum Command {
     BenchStream(BenchStreamArgs),
     /// Write the demo scenario's seeded streams: records, ground truth, label events, manifest.
     Generate(GenerateArgs),
+    /// Check a settings file before a deploy: settings, rules and model files; with --connect, the brokers, topics and consumer group.
+    CheckConfig(CheckConfigArgs),
 }
 
 /// How to read an input file.
@@ -323,6 +325,22 @@ pub struct BenchStreamArgs {
     /// Repeat each throughput run this many times and report medians.
     #[arg(long, default_value_t = 3)]
     pub repeats: usize,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct CheckConfigArgs {
+    /// Model snapshot to check against the settings (overrides service.model); its classes name the class topics.
+    #[arg(long, short)]
+    pub model: Option<PathBuf>,
+    /// Also connect to the brokers and check every configured topic and the consumer group.
+    #[arg(long)]
+    pub connect: bool,
+    /// Time limit of each broker request with --connect, milliseconds.
+    #[arg(long, default_value_t = 10_000)]
+    pub timeout_ms: u64,
     /// Print the report as JSON.
     #[arg(long)]
     pub json: bool,

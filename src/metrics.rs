@@ -21,6 +21,7 @@ pub const OFFSET_COMMITS: &str = "sieveline_offset_commits_total";
 pub const DRAIN_TIMEOUTS: &str = "sieveline_drain_timeouts_total";
 pub const CONSUMER_ERRORS: &str = "sieveline_consumer_errors_total";
 pub const MODEL_CLASSES: &str = "sieveline_model_classes";
+pub const REBALANCES: &str = "sieveline_rebalances_total";
 
 /// Label of [`RECORDS_DEAD_LETTERED`].
 pub const LABEL_REASON: &str = "reason";
@@ -28,6 +29,8 @@ pub const LABEL_REASON: &str = "reason";
 pub const LABEL_CLASS: &str = "class";
 /// Label of [`OFFSET_COMMITS`]: `ok` or `error`.
 pub const LABEL_RESULT: &str = "result";
+/// Label of [`REBALANCES`]: `assign` or `revoke`.
+pub const LABEL_KIND: &str = "kind";
 
 /// The service's metrics, registered in their own registry.
 #[derive(Clone)]
@@ -48,6 +51,7 @@ pub struct Metrics {
     pub drain_timeouts: IntCounter,
     pub consumer_errors: IntCounter,
     pub model_classes: IntGauge,
+    pub rebalances: IntCounterVec,
 }
 
 impl Metrics {
@@ -101,6 +105,7 @@ impl Metrics {
             drain_timeouts: counter(DRAIN_TIMEOUTS, "Drains (revoke or shutdown) that hit their time limit with records in flight."),
             consumer_errors: counter(CONSUMER_ERRORS, "Errors reported by the Kafka consumer (the client retries by itself)."),
             model_classes: gauge(MODEL_CLASSES, "Classes of the model being served."),
+            rebalances: counter_vec(REBALANCES, "Consumer group rebalance events of this replica, by kind (assign, revoke).", LABEL_KIND),
             registry,
         }
     }

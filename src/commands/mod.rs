@@ -1,6 +1,7 @@
 //! Subcommands, one file each, plus the flag-over-settings helpers they share.
 
 pub mod bench_stream;
+pub mod check_config;
 pub mod classify;
 pub mod eval;
 pub mod explain;
