@@ -432,6 +432,9 @@ impl Settings {
                 .prefix_separator(ENV_SEPARATOR)
                 .separator(ENV_SEPARATOR)
                 .try_parsing(true)
+                // List settings take comma-separated values: SIEVELINE__SOURCE__TOPICS=a.in,b.in
+                .list_separator(",")
+                .with_list_parse_key("source.topics")
                 .source(Some(env_map)),
         );
         let cfg = builder.build().map_err(|e| SettingsError::Merge(e.to_string()))?;
@@ -722,6 +725,17 @@ mod tests {
     fn unrelated_env_vars_with_similar_names_are_not_read() {
         let s = Settings::load_with_env(None, env(&[("SIEVELINE_DATA_DIR", "/x")])).unwrap();
         assert_eq!(s, Settings::defaults());
+    }
+
+    #[test]
+    fn list_settings_take_comma_separated_env_values() {
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__SOURCE__TOPICS", "tickets.in,tickets.late")])).unwrap();
+        assert_eq!(s.source.topics, ["tickets.in", "tickets.late"]);
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__SOURCE__TOPICS", "tickets.in")])).unwrap();
+        assert_eq!(s.source.topics, ["tickets.in"]);
+        // Other strings stay strings, commas and all.
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__KAFKA__BOOTSTRAP_SERVERS", "b1:9092,b2:9092")])).unwrap();
+        assert_eq!(s.kafka.bootstrap_servers, "b1:9092,b2:9092");
     }
 
     #[test]
