@@ -68,6 +68,7 @@ pub fn run(settings: Settings, args: &BenchScaleArgs) -> Result<()> {
     let mut rows = Vec::new();
     for &n in &args.replicas {
         let mut rates = Vec::new();
+        let mut per_cpu_rates = Vec::new();
         let mut shares = Vec::new();
         for r in 0..args.repeats {
             let mut sr = s.clone();
@@ -76,6 +77,7 @@ pub fn run(settings: Settings, args: &BenchScaleArgs) -> Result<()> {
             fleet.wait_covered(&input, args.partitions, JOIN_LIMIT)?;
             let (t0, c0) = (Instant::now(), fleet.outputs());
             let in0 = fleet.records_in();
+            let cpu0 = fleet.cpu_seconds();
             let total = lines.len() as u64;
             while fleet.outputs() < total {
                 fleet.check_alive()?;
@@ -83,9 +85,16 @@ pub fn run(settings: Settings, args: &BenchScaleArgs) -> Result<()> {
             }
             let secs = t0.elapsed().as_secs_f64();
             let rate = (total - c0) as f64 / secs;
+            let cpu = fleet.cpu_seconds() - cpu0;
+            let per_cpu = (total - c0) as f64 / cpu.max(1e-9);
             let ins: Vec<u64> = fleet.records_in().iter().zip(&in0).map(|(a, b)| a - b).collect();
-            eprintln!("bench-scale: {n} replica(s), run {}: {rate:.0} records/s over {} records in the window; per replica read {ins:?}", r + 1, total - c0);
+            eprintln!(
+                "bench-scale: {n} replica(s), run {}: {rate:.0} records/s over {} records in the window; {cpu:.2} CPU-s in the replicas ({per_cpu:.0} records per CPU-second); per replica read {ins:?}",
+                r + 1,
+                total - c0
+            );
             rates.push(rate);
+            per_cpu_rates.push(per_cpu);
             shares.push(ins);
             fleet.stop_all(Duration::from_secs(30))?;
         }
@@ -95,6 +104,8 @@ pub fn run(settings: Settings, args: &BenchScaleArgs) -> Result<()> {
             "records_per_sec": rates.iter().map(|r| r.round() as i64).collect::<Vec<_>>(),
             "median": med.round() as i64,
             "median_per_replica": (med / n as f64).round() as i64,
+            "records_per_cpu_second": per_cpu_rates.iter().map(|r| r.round() as i64).collect::<Vec<_>>(),
+            "records_per_cpu_second_median": median(&mut per_cpu_rates.clone()).round() as i64,
             "records_read_per_replica": shares,
         }));
     }
@@ -145,8 +156,8 @@ pub fn run(settings: Settings, args: &BenchScaleArgs) -> Result<()> {
         println!("{} records of {} bytes, {} partitions, {} cores", lines.len(), args.record_bytes, args.partitions, cores);
         for r in report["throughput"].as_array().expect("rows") {
             println!(
-                "{} replica(s): median {} records/s ({} per replica), runs {}",
-                r["replicas"], r["median"], r["median_per_replica"], r["records_per_sec"]
+                "{} replica(s): median {} records/s ({} per replica), runs {}; {} records per CPU-second of the replicas",
+                r["replicas"], r["median"], r["median_per_replica"], r["records_per_sec"], r["records_per_cpu_second_median"]
             );
         }
         let f = &report["failover"];
@@ -257,6 +268,21 @@ impl Fleet {
             .collect()
     }
 
+    /// CPU time (user + system) the live replicas have used, from /proc/PID/stat (Linux).
+    fn cpu_seconds(&self) -> f64 {
+        let tick = clock_ticks_per_second();
+        self.alive()
+            .map(|r| {
+                let stat = std::fs::read_to_string(format!("/proc/{}/stat", r.child.id())).unwrap_or_default();
+                // Fields after the command name (which is in parentheses): utime is the 12th, stime the 13th.
+                let rest = stat.rsplit_once(')').map(|x| x.1).unwrap_or("");
+                let f: Vec<&str> = rest.split_whitespace().collect();
+                let ticks = |i: usize| f.get(i).and_then(|x| x.parse::<u64>().ok()).unwrap_or(0);
+                (ticks(11) + ticks(12)) as f64 / tick
+            })
+            .sum()
+    }
+
     fn kill(&mut self, i: usize) {
         if let Some(mut r) = self.replicas[i].take() {
             let _ = r.child.kill();
@@ -303,6 +329,16 @@ impl Fleet {
         self.replicas.clear();
         Ok(())
     }
+}
+
+/// Kernel clock ticks per second (`getconf CLK_TCK`; 100 on common Linux builds if that fails).
+fn clock_ticks_per_second() -> f64 {
+    Command::new("getconf")
+        .arg("CLK_TCK")
+        .output()
+        .ok()
+        .and_then(|o| String::from_utf8(o.stdout).ok()?.trim().parse().ok())
+        .unwrap_or(100.0)
 }
 
 /// The partitions of `topic` a replica owns, from `GET /assignment`.
