@@ -32,7 +32,7 @@ fn image_build_steps_and_entry_command_run_and_serve() {
     let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("dry-run report JSON");
     let ran: Vec<&str> = report["ran"].as_array().unwrap().iter().map(|v| v.as_str().unwrap()).collect();
     assert!(ran.iter().any(|r| r.starts_with("cargo build --release --locked")), "the cargo build ran: {ran:?}");
-    assert!(ran.iter().any(|r| r.contains("scripts/install-deps.sh")), "the dependency script ran: {ran:?}");
+    assert!(ran.iter().any(|r| r.contains("scripts/install-deps.sh build")), "the dependency script ran: {ran:?}");
     assert!(!report["not_run"].as_array().unwrap().is_empty(), "runtime RUN lines are reported as not run");
     assert_eq!(report["libraries"]["libssl.so.3"], "libssl3", "{}", report["libraries"]);
     let packages: Vec<&str> = report["runtime_packages"].as_array().unwrap().iter().map(|v| v.as_str().unwrap()).collect();
