@@ -335,6 +335,9 @@ pub struct TopicNeed {
     pub access: TopicAccess,
     /// False when the service creates it if missing (`routing.create_missing_topics`).
     pub must_exist: bool,
+    /// Read through the consumer group (`kafka.group_id`, offsets committed), as source topics
+    /// are; false for topics read by assignment or written.
+    pub via_group: bool,
 }
 
 /// How the service uses a topic, which is also the ACL it needs beside Describe.
@@ -366,7 +369,8 @@ impl Settings {
         let mut out: Vec<TopicNeed> = Vec::new();
         let mut push = |name: String, role: &'static str, class: Option<String>, access: TopicAccess, must_exist: bool| {
             if !out.iter().any(|t| t.name == name) {
-                out.push(TopicNeed { name, role, class, access, must_exist });
+                let via_group = role == "source";
+                out.push(TopicNeed { name, role, class, access, must_exist, via_group });
             }
         };
         if self.source.kind == SourceKind::Kafka {
@@ -796,6 +800,7 @@ mod tests {
         let names: Vec<&str> = t.iter().map(|t| t.name.as_str()).collect();
         assert_eq!(names, ["in.a", "in.b", "out.review", "sieveline.dead-letters", "out.billing", "out.lost_parcel"]);
         assert_eq!(t[0].access, TopicAccess::Read);
+        assert!(t[0].via_group && t[1].via_group && t.iter().skip(2).all(|t| !t.via_group));
         assert!(t.iter().skip(2).all(|t| t.access == TopicAccess::Write && t.must_exist));
         assert_eq!(t[5].class.as_deref(), Some("lost parcel"));
         // "review" as a class maps onto the review topic: listed once, as the review topic.

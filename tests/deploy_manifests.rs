@@ -44,7 +44,7 @@ fn unit() -> Vec<(String, String, String)> {
 }
 
 fn unit_value(key: &str) -> String {
-    unit().into_iter().filter(|(s, k, _)| s == "Service" && k == key).map(|x| x.2).last().unwrap_or_else(|| panic!("unit has no {key}"))
+    unit().into_iter().filter(|(s, k, _)| s == "Service" && k == key).map(|x| x.2).next_back().unwrap_or_else(|| panic!("unit has no {key}"))
 }
 
 /// systemd time spans as used in the unit: "45s", "2min", "45".

@@ -224,18 +224,18 @@ pub fn check_cluster(settings: &Settings, needs: &[TopicNeed], timeout: Duration
             state,
         });
     }
-    let sources: Vec<(&str, usize)> = topics
+    // The group's offsets on the topics it consumes (not on topics read by assignment).
+    let sources: Vec<(&str, usize)> = needs
         .iter()
-        .filter(|t| t.access == "read")
-        .filter_map(|t| match t.state {
+        .zip(&topics)
+        .filter(|(n, _)| n.via_group)
+        .filter_map(|(_, t)| match t.state {
             TopicState::Ok { partitions, .. } => Some((t.name.as_str(), partitions)),
             _ => None,
         })
         .collect();
-    let group = needs
-        .iter()
-        .any(|n| n.access == TopicAccess::Read)
-        .then(|| check_group(&client, &settings.kafka.group_id, &sources, timeout));
+    let group =
+        needs.iter().any(|n| n.via_group).then(|| check_group(&client, &settings.kafka.group_id, &sources, timeout));
     Ok(ClusterCheck { bootstrap: settings.kafka.bootstrap_servers.clone(), brokers, topics, group })
 }
 
@@ -274,7 +274,7 @@ fn check_group(client: &BaseConsumer<CheckContext>, id: &str, sources: &[(&str, 
         if let Err(err) = e.error() {
             return fail(err);
         }
-        let (low, high) = match client.fetch_watermarks(e.topic(), e.partition(), timeout) {
+        let (low, high) = match watermarks(client, e.topic(), e.partition(), timeout) {
             Ok(w) => w,
             Err(err) => return fail(err),
         };
@@ -292,6 +292,34 @@ fn check_group(client: &BaseConsumer<CheckContext>, id: &str, sources: &[(&str, 
         .and_then(|l| l.groups().iter().find(|g| g.name() == id).map(|g| g.members().len()))
         .unwrap_or(0);
     GroupCheck::Described { id, committed: with_offset, partitions: committed.count(), backlog, members }
+}
+
+/// A partition's low and high offsets, retried a few times on errors that clear by themselves
+/// (a leader moving or just elected, as after a topic is created).
+fn watermarks(client: &BaseConsumer<CheckContext>, topic: &str, partition: i32, timeout: Duration) -> Result<(i64, i64), KafkaError> {
+    let mut attempt = 0;
+    loop {
+        match client.fetch_watermarks(topic, partition, timeout) {
+            Err(e) if attempt < 5 && is_transient(&e) => {
+                attempt += 1;
+                std::thread::sleep(Duration::from_millis(200));
+            }
+            other => return other,
+        }
+    }
+}
+
+fn is_transient(e: &KafkaError) -> bool {
+    matches!(
+        e.rdkafka_error_code(),
+        Some(
+            RDKafkaErrorCode::NotLeaderForPartition
+                | RDKafkaErrorCode::LeaderNotAvailable
+                | RDKafkaErrorCode::UnknownLeaderEpoch
+                | RDKafkaErrorCode::FencedLeaderEpoch
+                | RDKafkaErrorCode::OffsetNotAvailable
+        )
+    )
 }
 
 #[cfg(test)]
