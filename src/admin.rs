@@ -1,4 +1,4 @@
-//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON) and `POST /classify`; a bearer token guards all but metrics and health.
+//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON), `/assignment` (owned partitions) and `POST /classify`; a bearer token guards all but metrics and health.
 
 use std::sync::Arc;
 
@@ -19,6 +19,14 @@ use crate::runtime::model_view::ModelHandle;
 use crate::runtime::router::{RouteScratch, Router};
 use crate::runtime::Readiness;
 
+/// Route paths, shared with the deploy manifests' consistency test.
+pub const PATH_METRICS: &str = "/metrics";
+pub const PATH_HEALTHZ: &str = "/healthz";
+pub const PATH_READYZ: &str = "/readyz";
+pub const PATH_MODEL: &str = "/model";
+pub const PATH_CLASSIFY: &str = "/classify";
+pub const PATH_ASSIGNMENT: &str = "/assignment";
+
 /// The largest body `POST /classify` reads.
 const MAX_CLASSIFY_BODY: usize = 1 << 20;
 
@@ -35,13 +43,14 @@ pub struct AdminState {
 /// The routes; guarded ones check the bearer token.
 pub fn routes(state: AdminState) -> HttpRouter {
     let guarded = HttpRouter::new()
-        .route("/model", get(model_info))
-        .route("/classify", post(classify))
+        .route(PATH_MODEL, get(model_info))
+        .route(PATH_CLASSIFY, post(classify))
+        .route(PATH_ASSIGNMENT, get(assignment))
         .route_layer(middleware::from_fn_with_state(state.clone(), require_token));
     HttpRouter::new()
-        .route("/metrics", get(metrics))
-        .route("/healthz", get(|| async { "ok\n" }))
-        .route("/readyz", get(readyz))
+        .route(PATH_METRICS, get(metrics))
+        .route(PATH_HEALTHZ, get(|| async { "ok\n" }))
+        .route(PATH_READYZ, get(readyz))
         .merge(guarded)
         .layer(axum::extract::DefaultBodyLimit::max(MAX_CLASSIFY_BODY))
         .with_state(state)
@@ -86,6 +95,11 @@ async fn readyz(State(st): State<AdminState>) -> Response {
         };
         (StatusCode::SERVICE_UNAVAILABLE, why).into_response()
     }
+}
+
+/// The source partitions this replica owns now (JSON), for checking coverage across replicas.
+async fn assignment(State(st): State<AdminState>) -> Response {
+    Json(st.readiness.assignment.view()).into_response()
 }
 
 /// `GET /model`; `?fingerprint=1` adds the count fingerprint (it hashes every row).

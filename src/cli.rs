@@ -44,6 +44,10 @@ pub enum Command {
     /// Run the whole job in process on the invented demo scenario: rules on day one, reviewers'
     /// labels teaching the model, drift, a live status page; no broker needed.
     Demo(DemoArgs),
+    /// Measure replicas of `run` in one consumer group: records/s for 1, 2, 3 … replicas, and coverage time after a replica's loss.
+    BenchScale(BenchScaleArgs),
+    /// Check a settings file before a deploy: settings, rules and model files; with --connect, the brokers, topics and consumer group.
+    CheckConfig(CheckConfigArgs),
 }
 
 /// How to read an input file.
@@ -365,6 +369,50 @@ pub struct BenchStreamArgs {
     /// Repeat each throughput run this many times and report medians.
     #[arg(long, default_value_t = 3)]
     pub repeats: usize,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct CheckConfigArgs {
+    /// Model snapshot to check against the settings (overrides service.model); its classes name the class topics.
+    #[arg(long, short)]
+    pub model: Option<PathBuf>,
+    /// Also connect to the brokers and check every configured topic and the consumer group.
+    #[arg(long)]
+    pub connect: bool,
+    /// Time limit of each broker request with --connect, milliseconds.
+    #[arg(long, default_value_t = 10_000)]
+    pub timeout_ms: u64,
+    /// Print the report as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct BenchScaleArgs {
+    /// Bootstrap brokers (default: $SIEVELINE_TEST_BROKERS, else kafka.bootstrap_servers).
+    #[arg(long)]
+    pub brokers: Option<String>,
+    /// Records in the input topic, drained by each run.
+    #[arg(long, default_value_t = 300_000)]
+    pub records: usize,
+    /// Bytes per generated log line.
+    #[arg(long, default_value_t = 120)]
+    pub record_bytes: usize,
+    /// Input partitions.
+    #[arg(long, default_value_t = 6)]
+    pub partitions: i32,
+    /// Replica counts to measure, comma-separated.
+    #[arg(long, value_delimiter = ',', default_value = "1,2,3")]
+    pub replicas: Vec<usize>,
+    /// Runs per replica count (and failover runs); medians are reported.
+    #[arg(long, default_value_t = 3)]
+    pub repeats: usize,
+    /// The replicas' session.timeout.ms: how long the group waits for a silent member.
+    #[arg(long, default_value_t = 10_000)]
+    pub session_timeout_ms: u64,
     /// Print the report as JSON.
     #[arg(long)]
     pub json: bool,

@@ -41,12 +41,17 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::BenchStream(a) => commands::bench_stream::run(settings, a),
         Command::Generate(a) => commands::generate::run(a),
         Command::Demo(a) => commands::demo::run(a),
+        Command::CheckConfig(a) => commands::check_config::run(settings, a),
+        Command::BenchScale(a) => commands::bench_scale::run(settings, a),
     }
 }
 
 fn exit_code(e: &anyhow::Error) -> u8 {
     for cause in e.chain() {
         if let Some(code) = commands::run::exit_code_of(cause) {
+            return code;
+        }
+        if let Some(code) = commands::check_config::exit_code_of(cause) {
             return code;
         }
         if cause.is::<SettingsError>() || cause.is::<RulesError>() {

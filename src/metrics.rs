@@ -21,6 +21,7 @@ pub const OFFSET_COMMITS: &str = "sieveline_offset_commits_total";
 pub const DRAIN_TIMEOUTS: &str = "sieveline_drain_timeouts_total";
 pub const CONSUMER_ERRORS: &str = "sieveline_consumer_errors_total";
 pub const MODEL_CLASSES: &str = "sieveline_model_classes";
+pub const REBALANCES: &str = "sieveline_rebalances_total";
 
 // Online learning (docs/learning.md).
 pub const LABELS_READ: &str = "sieveline_labels_read_total";
@@ -45,6 +46,8 @@ pub const LABEL_REASON: &str = "reason";
 pub const LABEL_CLASS: &str = "class";
 /// Label of [`OFFSET_COMMITS`]: `ok` or `error`.
 pub const LABEL_RESULT: &str = "result";
+/// Label of [`REBALANCES`]: `assign` or `revoke`.
+pub const LABEL_KIND: &str = "kind";
 
 /// The service's metrics, registered in their own registry.
 #[derive(Clone)]
@@ -80,6 +83,7 @@ pub struct Metrics {
     pub snapshots: IntCounterVec,
     pub last_snapshot: IntGauge,
     pub model_loads: IntCounterVec,
+    pub rebalances: IntCounterVec,
 }
 
 impl Metrics {
@@ -156,6 +160,7 @@ impl Metrics {
             snapshots: counter_vec(SNAPSHOTS, "Model snapshots written, by result.", LABEL_RESULT),
             last_snapshot: gauge(LAST_SNAPSHOT, "Unix time of the last snapshot written (0: none yet)."),
             model_loads: counter_vec(MODEL_LOADS, "Model files loaded by the learner (start and reload), by result (ok, refused).", LABEL_RESULT),
+            rebalances: counter_vec(REBALANCES, "Consumer group rebalance events of this replica, by kind (assign, revoke).", LABEL_KIND),
             registry,
         }
     }

@@ -420,6 +420,74 @@ impl Settings {
     }
 }
 
+/// A Kafka topic the service reads or writes under these settings (see [`Settings::kafka_topics`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TopicNeed {
+    pub name: String,
+    /// What it is for: "source", "review", "dead letters", "class" (the class is in `class`).
+    pub role: &'static str,
+    /// The class a class topic is for.
+    pub class: Option<String>,
+    /// The service consumes it (`Read`) or produces to it (`Write`).
+    pub access: TopicAccess,
+    /// False when the service creates it if missing (`routing.create_missing_topics`).
+    pub must_exist: bool,
+    /// Read through the consumer group (`kafka.group_id`, offsets committed), as source topics
+    /// are; false for topics read by assignment or written.
+    pub via_group: bool,
+}
+
+/// How the service uses a topic, which is also the ACL it needs beside Describe.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TopicAccess {
+    Read,
+    Write,
+}
+
+/// The destination topic of `class` under `template`: `{class}` replaced by the class,
+/// with characters a topic name cannot hold turned into `_`.
+pub fn fill_topic_template(template: &str, class: &str) -> String {
+    if !template.contains("{class}") {
+        return template.to_string();
+    }
+    let safe: String = class
+        .chars()
+        .map(|c| if c.is_ascii_alphanumeric() || c == '.' || c == '_' || c == '-' { c } else { '_' })
+        .collect();
+    template.replace("{class}", &safe)
+}
+
+impl Settings {
+    /// Every Kafka topic these settings make the service use, in a stable order without
+    /// repeats: source topics (Kafka source), then review, dead-letter and one class topic
+    /// per class in `classes` (Kafka sink; the classes of the model and the rules, when known).
+    /// The one list `check-config` checks; new topic kinds (label topics) belong here.
+    pub fn kafka_topics(&self, classes: &[String]) -> Vec<TopicNeed> {
+        let mut out: Vec<TopicNeed> = Vec::new();
+        let mut push = |name: String, role: &'static str, class: Option<String>, access: TopicAccess, must_exist: bool| {
+            if !out.iter().any(|t| t.name == name) {
+                let via_group = role == "source";
+                out.push(TopicNeed { name, role, class, access, must_exist, via_group });
+            }
+        };
+        if self.source.kind == SourceKind::Kafka {
+            for t in &self.source.topics {
+                push(t.clone(), "source", None, TopicAccess::Read, true);
+            }
+        }
+        if self.sink.kind == SinkKind::Kafka {
+            let created = self.routing.create_missing_topics;
+            push(self.routing.review_topic.clone(), "review", None, TopicAccess::Write, !created);
+            push(self.dead_letter.topic.clone(), "dead letters", None, TopicAccess::Write, !created);
+            for c in classes {
+                let name = fill_topic_template(&self.routing.topic_template, c);
+                push(name, "class", Some(c.clone()), TopicAccess::Write, !created);
+            }
+        }
+        out
+    }
+}
+
 impl Settings {
     /// Defaults, then `file` (if any), then the process environment.
     pub fn load(file: Option<&Path>) -> Result<Settings, SettingsError> {
@@ -465,6 +533,9 @@ impl Settings {
                 .prefix_separator(ENV_SEPARATOR)
                 .separator(ENV_SEPARATOR)
                 .try_parsing(true)
+                // List settings take comma-separated values: SIEVELINE__SOURCE__TOPICS=a.in,b.in
+                .list_separator(",")
+                .with_list_parse_key("source.topics")
                 .source(Some(env_map)),
         );
         let cfg = builder.build().map_err(|e| SettingsError::Merge(e.to_string()))?;
@@ -759,6 +830,17 @@ mod tests {
     }
 
     #[test]
+    fn list_settings_take_comma_separated_env_values() {
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__SOURCE__TOPICS", "tickets.in,tickets.late")])).unwrap();
+        assert_eq!(s.source.topics, ["tickets.in", "tickets.late"]);
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__SOURCE__TOPICS", "tickets.in")])).unwrap();
+        assert_eq!(s.source.topics, ["tickets.in"]);
+        // Other strings stay strings, commas and all.
+        let s = Settings::load_with_env(None, env(&[("SIEVELINE__KAFKA__BOOTSTRAP_SERVERS", "b1:9092,b2:9092")])).unwrap();
+        assert_eq!(s.kafka.bootstrap_servers, "b1:9092,b2:9092");
+    }
+
+    #[test]
     fn typo_in_env_key_is_an_error() {
         let e = Settings::load_with_env(None, env(&[("SIEVELINE__MODEL__ALHPA", "0.5")])).unwrap_err();
         let msg = e.to_string();
@@ -801,6 +883,29 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("analyzer.patterns[0].regex"), "{e}");
+    }
+
+    #[test]
+    fn kafka_topics_follow_source_sink_and_classes() {
+        assert!(Settings::defaults().kafka_topics(&["a".into()]).is_empty(), "stdin to stdout uses no topic");
+        let s = Settings::from_toml_str(
+            "[source]\nkind = \"kafka\"\ntopics = [\"in.a\", \"in.b\"]\n[sink]\nkind = \"kafka\"\n\
+             [routing]\ntopic_template = \"out.{class}\"\nreview_topic = \"out.review\"\n",
+        )
+        .unwrap();
+        let classes = vec!["billing".to_string(), "lost parcel".to_string(), "review".to_string()];
+        let t = s.kafka_topics(&classes);
+        let names: Vec<&str> = t.iter().map(|t| t.name.as_str()).collect();
+        assert_eq!(names, ["in.a", "in.b", "out.review", "sieveline.dead-letters", "out.billing", "out.lost_parcel"]);
+        assert_eq!(t[0].access, TopicAccess::Read);
+        assert!(t[0].via_group && t[1].via_group && t.iter().skip(2).all(|t| !t.via_group));
+        assert!(t.iter().skip(2).all(|t| t.access == TopicAccess::Write && t.must_exist));
+        assert_eq!(t[5].class.as_deref(), Some("lost parcel"));
+        // "review" as a class maps onto the review topic: listed once, as the review topic.
+        assert_eq!(t[2].role, "review");
+        let mut c = s.clone();
+        c.routing.create_missing_topics = true;
+        assert!(c.kafka_topics(&classes).iter().filter(|t| t.access == TopicAccess::Write).all(|t| !t.must_exist));
     }
 
     #[test]

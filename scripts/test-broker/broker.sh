@@ -12,6 +12,10 @@
 #   broker.sh stop DIR                     SIGTERM, up to 30 s, then SIGKILL; idempotent
 #   broker.sh create-topic DIR NAME PARTITIONS [extra kafka-topics args...]
 #   broker.sh list-topics DIR              one topic name a line
+#   broker.sh acls DIR ARGS...             run Kafka's ACL tool on DIR's broker (e.g. --add
+#                                          --deny-principal User:ANONYMOUS --operation Describe
+#                                          --topic NAME); the broker needs an authorizer
+#                                          (SIEVELINE_BROKER_EXTRA_PROPS at start)
 #   broker.sh status DIR                   exit 0 if running and answering metadata
 #   broker.sh bootstrap DIR                print DIR's bootstrap address
 #
@@ -45,6 +49,7 @@ PROBE="$HERE/kafka_probe.py"
 MAIN_BROKER="kafka.Kafka"                          # kafka_2.13
 MAIN_STORAGE="kafka.tools.StorageTool"             # kafka_2.13
 MAIN_TOPICS="org.apache.kafka.tools.TopicCommand"  # kafka-tools
+MAIN_ACLS="org.apache.kafka.tools.AclCommand"      # kafka-tools
 
 log() { printf 'broker.sh: %s\n' "$*" >&2; }
 die() { printf 'broker.sh: error: %s\n' "$*" >&2; exit 1; }
@@ -349,6 +354,16 @@ cmd_list_topics() {
   tool_java "$dir" "$MAIN_TOPICS" --bootstrap-server "$bootstrap" --list
 }
 
+cmd_acls() {
+  local dir; dir="$(abs_dir "${1:-}")"
+  shift || true
+  need_tools
+  local bootstrap; bootstrap="$(running_bootstrap "$dir")"
+  cmd_install quiet
+  tool_java "$dir" "$MAIN_ACLS" --bootstrap-server "$bootstrap" "$@" >&2 ||
+    die "the ACL tool failed (does the broker run an authorizer?)"
+}
+
 cmd_status() {
   local dir; dir="$(abs_dir "${1:-}")"
   local bootstrap; bootstrap="$(running_bootstrap "$dir")"
@@ -365,6 +380,7 @@ main() {
     stop) cmd_stop "$@" ;;
     create-topic) cmd_create_topic "$@" ;;
     list-topics) cmd_list_topics "$@" ;;
+    acls) cmd_acls "$@" ;;
     status) cmd_status "$@" ;;
     bootstrap) [[ -n "${1:-}" && -f "$1/bootstrap" ]] || die "no bootstrap file in '${1:-}'"; cat "$1/bootstrap" ;;
     *) sed -n '2,/^$/p' "${BASH_SOURCE[0]}" | sed 's/^# \{0,1\}//' >&2; exit 2 ;;

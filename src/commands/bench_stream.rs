@@ -28,7 +28,7 @@ use crate::runtime::Service;
 use crate::settings::{CodecKind, Settings, SinkKind, SourceKind};
 use crate::text::{Analyzer, AnalyzerScratch, TermBag};
 
-const CLASSES: &[&str] = &["app", "auth", "network", "storage"];
+pub(crate) const CLASSES: &[&str] = &["app", "auth", "network", "storage"];
 const LINES: &[&[&str]] = &[
     &["worker pool exhausted, request queue full", "unhandled exception in checkout handler", "cache miss storm on catalog service", "slow response from pricing backend"],
     &["login failed for user, bad password", "token expired for session", "permission denied for role on resource", "too many sign-in attempts, account locked"],
@@ -138,7 +138,7 @@ pub fn run(settings: Settings, args: &BenchStreamArgs) -> Result<()> {
     Ok(())
 }
 
-fn median(v: &mut [f64]) -> f64 {
+pub(crate) fn median(v: &mut [f64]) -> f64 {
     v.sort_by(|a, b| a.total_cmp(b));
     v[v.len() / 2]
 }
@@ -153,7 +153,7 @@ fn quantile(sorted: &[f64], q: f64) -> f64 {
 }
 
 /// Log lines of an invented service fleet, padded to `bytes`.
-fn generate_lines(n: usize, bytes: usize, seed: u64) -> Vec<Vec<u8>> {
+pub(crate) fn generate_lines(n: usize, bytes: usize, seed: u64) -> Vec<Vec<u8>> {
     let mut x = seed.wrapping_mul(0x9E37_79B9_7F4A_7C15) | 1;
     let mut next = move || {
         x ^= x >> 12;
@@ -181,7 +181,7 @@ fn generate_lines(n: usize, bytes: usize, seed: u64) -> Vec<Vec<u8>> {
         .collect()
 }
 
-fn train_log_model(settings: &Settings, path: &std::path::Path) -> Result<()> {
+pub(crate) fn train_log_model(settings: &Settings, path: &std::path::Path) -> Result<()> {
     let analyzer = Analyzer::new(&settings.analyzer)?;
     let m = &settings.model;
     let classes: Vec<String> = CLASSES.iter().map(|c| c.to_string()).collect();
@@ -219,7 +219,7 @@ fn mean_decision_bytes(s: &Settings, sample: &[Vec<u8>]) -> Result<usize> {
     Ok(total / sample.len().max(1))
 }
 
-async fn create_topics(s: &Settings, topics: &[String], partitions: i32) -> Result<()> {
+pub(crate) async fn create_topics(s: &Settings, topics: &[String], partitions: i32) -> Result<()> {
     let admin: AdminClient<DefaultClientContext> = admin_config(s).create()?;
     let new: Vec<NewTopic> = topics.iter().map(|t| NewTopic::new(t, partitions, TopicReplication::Fixed(1))).collect();
     for r in admin.create_topics(new.iter(), &AdminOptions::new().operation_timeout(Some(Duration::from_secs(30)))).await? {
@@ -252,7 +252,7 @@ fn send_retry<C: ProducerContext>(p: &ThreadedProducer<C>, mut rec: BaseRecord<'
     }
 }
 
-fn produce_all(brokers: &str, topic: &str, lines: &[Vec<u8>]) -> Result<()> {
+pub(crate) fn produce_all(brokers: &str, topic: &str, lines: &[Vec<u8>]) -> Result<()> {
     let p = plain_producer(brokers)?;
     for (i, l) in lines.iter().enumerate() {
         let key = format!("node-{}", i % 64);

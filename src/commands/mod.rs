@@ -1,6 +1,8 @@
 //! Subcommands, one file each, plus the flag-over-settings helpers they share.
 
+pub mod bench_scale;
 pub mod bench_stream;
+pub mod check_config;
 pub mod classify;
 pub mod demo;
 pub mod eval;

@@ -1,6 +1,7 @@
 //! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model view seam, the learner and its label log, resolving id-only labels, shutdown, and `Service` that wires them from settings.
 
 pub mod ack;
+pub mod assignment;
 pub mod error;
 pub mod label_log;
 pub mod learner;

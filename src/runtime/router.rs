@@ -22,14 +22,7 @@ impl TopicTemplate {
 
     /// The topic for `class`; characters a topic name cannot hold become `_`.
     pub fn topic(&self, class: &str) -> String {
-        if !self.0.contains("{class}") {
-            return self.0.clone();
-        }
-        let safe: String = class
-            .chars()
-            .map(|c| if c.is_ascii_alphanumeric() || c == '.' || c == '_' || c == '-' { c } else { '_' })
-            .collect();
-        self.0.replace("{class}", &safe)
+        crate::settings::fill_topic_template(&self.0, class)
     }
 }
 

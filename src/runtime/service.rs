@@ -48,6 +48,8 @@ type RetryChannel = (
 pub struct Readiness {
     pub model_loaded: AtomicBool,
     pub joined: Arc<AtomicBool>,
+    /// The source partitions owned now (`GET /assignment`).
+    pub assignment: Arc<crate::runtime::assignment::Assignment>,
 }
 
 impl Readiness {
@@ -251,6 +253,7 @@ impl Service {
                     metrics: self.metrics.clone(),
                     revoke_drain: Duration::from_millis(s.delivery.revoke_drain_ms),
                     joined: self.readiness.joined.clone(),
+                    assignment: self.readiness.assignment.clone(),
                 };
                 let consumer: SourceConsumer = consumer_config(s)
                     .create_with_context(ctx)

@@ -9,6 +9,7 @@ use rdkafka::error::KafkaResult;
 use rdkafka::{ClientContext, Offset, TopicPartitionList};
 
 use crate::metrics::Metrics;
+use crate::runtime::assignment::Assignment;
 use crate::runtime::watermark::{OffsetSink, Tracker};
 
 pub type SourceConsumer = StreamConsumer<SourceContext>;
@@ -45,6 +46,8 @@ pub struct SourceContext {
     pub revoke_drain: Duration,
     /// Set once the first assignment (possibly empty) arrives: the group join completed.
     pub joined: Arc<AtomicBool>,
+    /// The partitions owned now, for `GET /assignment` and the log.
+    pub assignment: Arc<Assignment>,
 }
 
 impl ClientContext for SourceContext {}
@@ -78,7 +81,9 @@ impl ConsumerContext for SourceContext {
                 self.tracker.remove(e.topic(), e.partition());
             }
             self.metrics.partitions_assigned.sub(elements.len() as i64);
-            tracing::info!("revoked {} partitions", elements.len());
+            self.metrics.rebalances.with_label_values(&["revoke"]).inc();
+            self.assignment.remove(elements.iter().map(|e| (e.topic(), e.partition())));
+            tracing::info!("revoked {} partitions; assignment now: {}", elements.len(), self.assignment.describe());
         }
     }
 
@@ -90,8 +95,10 @@ impl ConsumerContext for SourceContext {
                 self.tracker.get(e.topic(), e.partition());
             }
             self.metrics.partitions_assigned.add(elements.len() as i64);
+            self.metrics.rebalances.with_label_values(&["assign"]).inc();
+            self.assignment.add(elements.iter().map(|e| (e.topic(), e.partition())));
             self.joined.store(true, Ordering::SeqCst);
-            tracing::info!("assigned {} partitions", elements.len());
+            tracing::info!("assigned {} partitions; assignment now: {}", elements.len(), self.assignment.describe());
         }
     }
 
