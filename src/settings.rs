@@ -466,7 +466,7 @@ impl Settings {
         let mut out: Vec<TopicNeed> = Vec::new();
         let mut push = |name: String, role: &'static str, class: Option<String>, access: TopicAccess, must_exist: bool| {
             if !out.iter().any(|t| t.name == name) {
-                let via_group = role == "source";
+                let via_group = role == "source" || role == "raw labels";
                 out.push(TopicNeed { name, role, class, access, must_exist, via_group });
             }
         };
@@ -482,6 +482,13 @@ impl Settings {
             for c in classes {
                 let name = fill_topic_template(&self.routing.topic_template, c);
                 push(name, "class", Some(c.clone()), TopicAccess::Write, !created);
+            }
+        }
+        if self.learning.enabled && self.source.kind == SourceKind::Kafka {
+            // Read by every replica by assignment; written when raw labels are resolved.
+            push(self.learning.label_topic.clone(), "learned labels", None, TopicAccess::Read, true);
+            if !self.learning.raw_label_topic.is_empty() {
+                push(self.learning.raw_label_topic.clone(), "raw labels", None, TopicAccess::Read, true);
             }
         }
         out
@@ -906,6 +913,13 @@ mod tests {
         let mut c = s.clone();
         c.routing.create_missing_topics = true;
         assert!(c.kafka_topics(&classes).iter().filter(|t| t.access == TopicAccess::Write).all(|t| !t.must_exist));
+        // Learning adds the learned-label topic (by assignment) and the raw label topic (by group).
+        let mut l = s.clone();
+        l.learning.enabled = true;
+        l.learning.raw_label_topic = "labels.raw".into();
+        let t = l.kafka_topics(&classes);
+        let last: Vec<(&str, bool)> = t.iter().rev().take(2).map(|t| (t.name.as_str(), t.via_group)).collect();
+        assert_eq!(last, [("labels.raw", true), ("sieveline.labels", false)]);
     }
 
     #[test]

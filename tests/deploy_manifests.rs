@@ -96,6 +96,13 @@ fn manifests_parse_and_reference_what_exists() {
     assert!(volumes.contains_key("snapshots"), "a volume for model snapshots");
     let snap = k.container()["volumeMounts"].as_array().unwrap().iter().find(|m| m["name"] == "snapshots").unwrap();
     assert!(snap["readOnly"] != true, "snapshots are written");
+    let s = pod_settings(&k);
+    let mount = snap["mountPath"].as_str().unwrap();
+    assert!(
+        s.snapshot.path.starts_with(&format!("{}/", mount.trim_end_matches('/'))),
+        "snapshot.path {} lies under the snapshots mount {mount}",
+        s.snapshot.path
+    );
 }
 
 #[test]

@@ -203,15 +203,15 @@ fn labels_change_decisions_corrections_undo_and_bad_events_are_dead_lettered() {
 }
 
 #[test]
-fn replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
+fn three_replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     let brokers = brokers();
     let dir = test_dir("learn-replicas");
     let base = base_model(&dir);
-    let sc = Scenario::new("conv", &brokers, &base, &dir, 2);
+    let sc = Scenario::new("conv", &brokers, &base, &dir, 3);
     let labels_topic = format!("{}.labels", sc.prefix);
     let raw_topic = format!("{}.raw-labels", sc.prefix);
     let outs = sc.create_topics(CLASSES);
-    create_topics(&brokers, &[(&labels_topic, 3), (&raw_topic, 2)]);
+    create_topics(&brokers, &[(&labels_topic, 3), (&raw_topic, 3)]);
     let start = |tag: &str| {
         let mut r = sc.clone();
         r.extra = learning_extra(&sc.prefix, &dir.join(format!("snapshot-{tag}.svm")), Some(&raw_topic));
@@ -221,12 +221,13 @@ fn replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     };
     let r1 = start("r1");
     let mut r2 = start("r2");
+    let r3 = start("r3");
 
     // Records keyed by customer, not by id: raw labels carry the input partition from the decision.
     let records = data::stream(600, 40, None, 21);
     produce_all(&brokers, &sc.input, &records);
     let mut col = Collector::new(&brokers, &outs);
-    let expected = common::kafka::input_positions(&brokers, &sc.input, 2);
+    let expected = common::kafka::input_positions(&brokers, &sc.input, 3);
     assert!(col.until_covered(&expected, Duration::from_secs(90)), "every record decided");
     let mut decided: Vec<(String, String, i32)> = Vec::new();
     for r in &col.records {
@@ -260,6 +261,7 @@ fn replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     raw.append(&mut corrections);
     raw.push((Some(0), Some(b"nobody".to_vec()), br#"{"id": "never-scored", "class": "billing"}"#.to_vec()));
     raw.push((Some(1), None, b"{\"id\": ".to_vec()));
+    raw.push((Some(2), Some(b"x".to_vec()), br#"{"id": "never-scored-2", "class": "billing"}"#.to_vec()));
 
     // Labels flow in batches; replica 2 is SIGKILLed in the middle and restarted from its snapshot.
     let batches: Vec<_> = raw.chunks(raw.len() / 6 + 1).map(<[_]>::to_vec).collect();
@@ -289,12 +291,15 @@ fn replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     };
     let i1 = wait_for(Duration::from_secs(60), "replica 1 to fold the whole log", || caught_up(&r1));
     let i2 = wait_for(Duration::from_secs(60), "replica 2 to fold the whole log", || caught_up(&r2));
+    let i3 = wait_for(Duration::from_secs(60), "replica 3 to fold the whole log", || caught_up(&r3));
     eprintln!(
-        "learned-label log: {total} events; replica 1 {} / replica 2 {} labels on top; fingerprints {} / {}",
-        i1["labels_applied"], i2["labels_applied"], i1["fingerprint"], i2["fingerprint"]
+        "learned-label log: {total} events; replicas 1/2/3 {} / {} / {} labels on top; fingerprints {} / {} / {}",
+        i1["labels_applied"], i2["labels_applied"], i3["labels_applied"], i1["fingerprint"], i2["fingerprint"], i3["fingerprint"]
     );
-    assert_eq!(i1["fingerprint"], i2["fingerprint"], "replica fingerprints");
+    assert_eq!(i1["fingerprint"], i2["fingerprint"], "replica 1 and 2 fingerprints");
+    assert_eq!(i1["fingerprint"], i3["fingerprint"], "replica 1 and 3 fingerprints");
     assert_eq!(i1["model_version"], i2["model_version"]);
+    assert_eq!(i1["model_version"], i3["model_version"]);
     assert!(i1["labels_applied"].as_u64().unwrap() > 100, "labels resolved and learned: {}", i1["labels_applied"]);
 
     // A rebuild from the learned-label topic gives the same counts.

@@ -91,7 +91,10 @@ pub fn run(mut settings: Settings, args: &CheckConfigArgs) -> Result<()> {
         }
         None
     };
-    let problems = cluster.as_ref().map(ClusterCheck::problems).unwrap_or_default();
+    let mut problems = cluster.as_ref().map(ClusterCheck::problems).unwrap_or_default();
+    if let Some(c) = &cluster {
+        problems.extend(co_partitioning_problem(&settings, c));
+    }
 
     if args.json {
         let doc = json!({
@@ -115,6 +118,34 @@ pub fn run(mut settings: Settings, args: &CheckConfigArgs) -> Result<()> {
     } else {
         Err(CheckError::Problems { count: problems.len() }.into())
     }
+}
+
+/// Id-only labels reach the replica that scored their record only if the raw
+/// label topic has exactly as many partitions as every source topic.
+fn co_partitioning_problem(s: &Settings, c: &ClusterCheck) -> Option<String> {
+    let raw = &s.learning.raw_label_topic;
+    if !s.learning.enabled || raw.is_empty() {
+        return None;
+    }
+    let parts = |name: &str| {
+        c.topics.iter().find(|t| t.name == name).and_then(|t| match t.state {
+            TopicState::Ok { partitions, .. } => Some(partitions),
+            _ => None,
+        })
+    };
+    let raw_parts = parts(raw)?;
+    let unequal: Vec<String> = s
+        .source
+        .topics
+        .iter()
+        .filter_map(|t| parts(t).filter(|p| *p != raw_parts).map(|p| format!("{t} has {p}")))
+        .collect();
+    (!unequal.is_empty()).then(|| {
+        format!(
+            "raw label topic {raw} has {raw_parts} partitions but {}: id-only labels would reach the wrong replica (co-partition them: same count, same key)",
+            unequal.join(", ")
+        )
+    })
 }
 
 fn print_text(
