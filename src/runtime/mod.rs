@@ -3,10 +3,12 @@
 pub mod ack;
 pub mod error;
 pub mod model_view;
+pub mod monitor;
 pub mod pipeline;
 pub mod router;
 pub mod service;
 pub mod shutdown;
+pub mod status;
 pub mod watermark;
 
 pub use error::ServiceError;

@@ -22,6 +22,7 @@ use crate::metrics::Metrics;
 use crate::runtime::ack::{AckShared, LatencyHook};
 use crate::runtime::error::ServiceError;
 use crate::runtime::model_view::{ModelHandle, ModelView};
+use crate::runtime::monitor::DriftMonitor;
 use crate::runtime::pipeline::{retry_loop, Pipeline};
 use crate::runtime::router::Router;
 use crate::runtime::watermark::{NoOffsets, OffsetSink, Tracker};
@@ -64,6 +65,7 @@ pub struct Service {
     router: Arc<Router>,
     readiness: Arc<Readiness>,
     latency_hook: Option<LatencyHook>,
+    drift: Arc<DriftMonitor>,
 }
 
 impl Service {
@@ -83,14 +85,9 @@ impl Service {
         }
         let readiness = Arc::new(Readiness::default());
         readiness.model_loaded.store(true, Ordering::SeqCst);
-        Ok(Service {
-            settings,
-            metrics,
-            model: ModelHandle::new(view),
-            router: Arc::new(router),
-            readiness,
-            latency_hook: None,
-        })
+        let model = ModelHandle::new(view);
+        let drift = Arc::new(DriftMonitor::new(&settings.drift, &settings.status_page, metrics.clone(), model.clone()));
+        Ok(Service { settings, metrics, model, router: Arc::new(router), readiness, latency_hook: None, drift })
     }
 
     pub fn metrics(&self) -> Arc<Metrics> {
@@ -100,6 +97,13 @@ impl Service {
     /// The seam where a reloader or learner publishes new model views.
     pub fn model(&self) -> ModelHandle {
         self.model.clone()
+    }
+
+    /// Drift and health monitoring. The learner reports here (see `src/runtime/monitor.rs`):
+    /// `observe_feedback` for each complete label scored before it is learned,
+    /// `observe_labels_learned`, `observe_snapshot_written`, `observe_reload` / `observe_reload_failed`.
+    pub fn drift(&self) -> Arc<DriftMonitor> {
+        self.drift.clone()
     }
 
     pub fn readiness(&self) -> Arc<Readiness> {
@@ -141,9 +145,24 @@ impl Service {
                 router: self.router.clone(),
                 readiness: self.readiness.clone(),
                 token: (!s.admin.token.is_empty()).then(|| s.admin.token.clone()),
+                drift: Some(self.drift.clone()),
+                status_page: s.status_page.enabled,
             };
             tasks.spawn(admin::serve(listener, state, stop_aux.clone()));
         }
+
+        // The status page's history: one sample per interval, whatever the record rate.
+        let (drift, stop, every) =
+            (self.drift.clone(), stop_aux.clone(), Duration::from_millis(s.status_page.sample_interval_ms));
+        tasks.spawn(async move {
+            let mut tick = tokio::time::interval(every);
+            loop {
+                tokio::select! {
+                    _ = stop.cancelled() => return,
+                    _ = tick.tick() => drift.sample(),
+                }
+            }
+        });
 
         let (sink, retry) = self.build_sink().await?;
         let sink = Arc::new(sink);
@@ -168,6 +187,7 @@ impl Service {
             shared: shared.clone(),
             limit: s.delivery.max_in_flight_per_partition,
             retry: retry.clone(),
+            drift: Some(self.drift.clone()),
         };
 
         match s.source.kind {

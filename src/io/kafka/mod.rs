@@ -2,5 +2,6 @@
 
 pub mod config;
 pub mod consumer;
+pub mod lag;
 pub mod producer;
 pub mod topics;

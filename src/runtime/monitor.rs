@@ -1,0 +1,454 @@
+//! The service side of drift and health: `DriftMonitor` (shared; the learner's feedback and freshness calls, the status page's history, gauges refreshed at each scrape) and `DecisionObserver` (owned by the record loop; plain counters per record, summarised into gauges every few hundred records).
+//!
+//! Where the learner calls in (issue 4): `Service::drift()` hands out the
+//! monitor. For each complete label, score its record with the current model
+//! BEFORE learning it (test-then-train) and call
+//! `observe_feedback(predicted, true_class, delay_seconds)`; after applying
+//! labels call `observe_labels_learned(n)`; after writing a snapshot
+//! `observe_snapshot_written()`; after a reload from a file `observe_reload()`,
+//! or `observe_reload_failed()` when a file was refused.
+
+use std::collections::VecDeque;
+use std::sync::atomic::{AtomicI64, AtomicU64, Ordering};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use prometheus::local::LocalHistogram;
+use serde::Serialize;
+
+use crate::decide::Decision;
+use crate::drift::oov::{known_from_score, known_tokens};
+use crate::drift::{
+    DecisionParams, DecisionSummary, DecisionTracker, FeedbackMonitor, FeedbackParams, FeedbackSummary,
+    Observation, PageHinkleyParams, ReferenceKind, ReviewRing, ReviewedRecord,
+};
+use crate::metrics::Metrics;
+use crate::runtime::model_view::{ModelHandle, ModelView};
+use crate::runtime::now_ms;
+use crate::runtime::router::RouteScratch;
+use crate::settings::{DriftReference, DriftSettings, DriftThresholds, StatusPageSettings};
+
+/// The decision side's settings from `[drift]`.
+pub fn decision_params(d: &DriftSettings) -> DecisionParams {
+    DecisionParams {
+        window_records: d.window_records,
+        reference: match d.reference {
+            DriftReference::Priors => ReferenceKind::Priors,
+            DriftReference::Baseline => ReferenceKind::Baseline,
+        },
+        baseline_records: d.baseline_records,
+        min_records: d.min_records,
+        psi_floor: d.psi_floor,
+    }
+}
+
+/// The feedback side's settings from `[drift]`.
+pub fn feedback_params(d: &DriftSettings) -> FeedbackParams {
+    FeedbackParams {
+        window: d.feedback_window_labels,
+        min_class_labels: d.feedback_min_class_labels,
+        page_hinkley: PageHinkleyParams {
+            delta: d.page_hinkley_delta,
+            lambda: d.page_hinkley_lambda,
+            min_samples: d.page_hinkley_min_labels,
+        },
+        change_hold_labels: d.change_hold_labels,
+    }
+}
+
+/// One point of the status page's history.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct HistoryPoint {
+    pub t_ms: i64,
+    pub records_in: u64,
+    pub records_per_second: Option<f64>,
+    pub psi: Option<f64>,
+    pub js_divergence_bits: Option<f64>,
+    pub unknown_token_ratio: Option<f64>,
+    pub review_ratio: Option<f64>,
+    pub feedback_accuracy: Option<f64>,
+}
+
+/// Throughput at one moment, from the `records_in` counter.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Throughput {
+    pub records_in: u64,
+    pub records_out: u64,
+    pub records_reviewed: u64,
+    pub records_dead_lettered: u64,
+    /// Records read per second over the last `window_seconds` (None until two samples exist).
+    pub records_per_second: Option<f64>,
+    pub window_seconds: f64,
+}
+
+/// Model freshness at one moment.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Freshness {
+    pub model_version: String,
+    pub classes: usize,
+    pub labels_learned: u64,
+    pub snapshots_written: u64,
+    pub snapshot_age_seconds: f64,
+    pub reload_age_seconds: f64,
+    pub reloads_ok: u64,
+    pub reloads_failed: u64,
+    pub seconds_since_last_label: f64,
+}
+
+/// Everything `/status.json` answers.
+#[derive(Debug, Clone, Serialize)]
+pub struct StatusReport {
+    pub generated_at_ms: i64,
+    pub uptime_seconds: f64,
+    pub drift_enabled: bool,
+    pub throughput: Throughput,
+    pub decisions: Option<DecisionSummary>,
+    pub feedback: FeedbackSummary,
+    pub freshness: Freshness,
+    pub consumer_lag_records: i64,
+    pub thresholds: DriftThresholds,
+    pub page_hinkley_lambda: f64,
+    pub recent_reviews: Vec<ReviewedRecord>,
+    pub reviews_seen: u64,
+    pub history: Vec<HistoryPoint>,
+    pub refresh_ms: u64,
+}
+
+/// Shared by the record loop, the learner, the admin endpoint and the sampler.
+pub struct DriftMonitor {
+    drift: DriftSettings,
+    page: StatusPageSettings,
+    metrics: Arc<Metrics>,
+    model: ModelHandle,
+    started: Instant,
+    started_ms: i64,
+    feedback: Mutex<FeedbackMonitor>,
+    decisions: Mutex<Option<DecisionSummary>>,
+    reviews: Mutex<(u64, Vec<ReviewedRecord>)>,
+    history: Mutex<VecDeque<HistoryPoint>>,
+    last_label_ms: AtomicI64,
+    last_snapshot_ms: AtomicI64,
+    last_reload_ms: AtomicI64,
+    /// Bumped by a reload; the record loop re-pins its baseline when it sees a new value.
+    reload_generation: AtomicU64,
+}
+
+impl DriftMonitor {
+    pub fn new(drift: &DriftSettings, page: &StatusPageSettings, metrics: Arc<Metrics>, model: ModelHandle) -> DriftMonitor {
+        let now = now_ms();
+        let created = crate::clock::parse_rfc3339(&model.current().meta.created_at).map(|s| s * 1000).unwrap_or(now);
+        let m = DriftMonitor {
+            drift: drift.clone(),
+            page: page.clone(),
+            metrics,
+            model,
+            started: Instant::now(),
+            started_ms: now,
+            feedback: Mutex::new(FeedbackMonitor::new(feedback_params(drift))),
+            decisions: Mutex::new(None),
+            reviews: Mutex::new((0, Vec::new())),
+            history: Mutex::new(VecDeque::with_capacity(page.history_points)),
+            last_label_ms: AtomicI64::new(now),
+            last_snapshot_ms: AtomicI64::new(created.min(now)),
+            last_reload_ms: AtomicI64::new(now),
+            reload_generation: AtomicU64::new(0),
+        };
+        m.refresh_gauges();
+        m
+    }
+
+    pub fn settings(&self) -> &DriftSettings {
+        &self.drift
+    }
+
+    /// The record loop's observer, or `None` when `drift.enabled` is off.
+    pub fn observer(self: &Arc<Self>) -> Option<DecisionObserver> {
+        self.drift.enabled.then(|| DecisionObserver::new(self.clone()))
+    }
+
+    /// One complete label, compared with the decision the current model makes on its record
+    /// before learning it. `delay_seconds`: from the record's time to the label's, if known.
+    pub fn observe_feedback(&self, predicted: &str, true_class: &str, delay_seconds: Option<f64>) {
+        let d = &self.metrics.drift;
+        let view = self.model.current();
+        let summary = {
+            let mut f = self.feedback.lock().expect("feedback lock");
+            let out = f.observe(predicted, true_class, delay_seconds);
+            d.feedback_labels.with_label_values(&[if out.correct { "correct" } else { "wrong" }]).inc();
+            if out.change_detected {
+                d.feedback_changes.inc();
+                tracing::warn!("feedback error rate rose: Page-Hinkley change detected");
+            }
+            f.summary(&view.classes)
+        };
+        if let Some(s) = delay_seconds.filter(|s| s.is_finite() && *s >= 0.0) {
+            d.feedback_label_delay.observe(s);
+        }
+        self.last_label_ms.store(now_ms(), Ordering::Relaxed);
+        export_feedback(&self.metrics, &summary, &view.classes);
+    }
+
+    /// `n` labels were learned into the served model.
+    pub fn observe_labels_learned(&self, n: u64) {
+        self.metrics.drift.labels_learned.inc_by(n);
+    }
+
+    /// A snapshot of the served model was written.
+    pub fn observe_snapshot_written(&self) {
+        self.metrics.drift.snapshots_written.inc();
+        self.last_snapshot_ms.store(now_ms(), Ordering::Relaxed);
+    }
+
+    /// A new model was loaded from a file and is being served. A pinned baseline is counted again.
+    pub fn observe_reload(&self) {
+        self.metrics.drift.reloads.with_label_values(&["ok"]).inc();
+        let now = now_ms();
+        self.last_reload_ms.store(now, Ordering::Relaxed);
+        let created = crate::clock::parse_rfc3339(&self.model.current().meta.created_at).map(|s| s * 1000);
+        if let Some(c) = created {
+            self.last_snapshot_ms.fetch_max(c.min(now), Ordering::Relaxed);
+        }
+        self.reload_generation.fetch_add(1, Ordering::Relaxed);
+    }
+
+    /// A model file was refused; the old model stays.
+    pub fn observe_reload_failed(&self) {
+        self.metrics.drift.reloads.with_label_values(&["error"]).inc();
+    }
+
+    /// Set the time-based gauges (ages); called before each scrape and status answer.
+    pub fn refresh_gauges(&self) {
+        let now = now_ms();
+        let d = &self.metrics.drift;
+        let secs = |ms: &AtomicI64| ((now - ms.load(Ordering::Relaxed)).max(0)) as f64 / 1000.0;
+        d.snapshot_age.set(secs(&self.last_snapshot_ms));
+        d.reload_age.set(secs(&self.last_reload_ms));
+        d.feedback_since_last_label.set(secs(&self.last_label_ms));
+    }
+
+    /// Take one history sample (the status page's sampler calls this every `sample_interval_ms`).
+    pub fn sample(&self) {
+        let t_ms = now_ms();
+        let records_in = self.metrics.records_in.get();
+        let rate = self.rate_at(t_ms, records_in);
+        let dec = self.decisions.lock().expect("decisions lock").clone();
+        let acc = {
+            let f = self.feedback.lock().expect("feedback lock");
+            f.summary(&[]).accuracy
+        };
+        let p = HistoryPoint {
+            t_ms,
+            records_in,
+            records_per_second: rate,
+            psi: dec.as_ref().and_then(|d| d.psi),
+            js_divergence_bits: dec.as_ref().and_then(|d| d.js_divergence_bits),
+            unknown_token_ratio: dec.as_ref().and_then(|d| d.oov_token_ratio),
+            review_ratio: dec.as_ref().and_then(|d| d.review_ratio),
+            feedback_accuracy: acc,
+        };
+        let mut h = self.history.lock().expect("history lock");
+        if h.len() >= self.page.history_points {
+            h.pop_front();
+        }
+        h.push_back(p);
+    }
+
+    /// Records per second between the oldest sample inside the throughput window and (`t_ms`, `records_in`).
+    fn rate_at(&self, t_ms: i64, records_in: u64) -> Option<f64> {
+        let h = self.history.lock().expect("history lock");
+        let from = t_ms - self.page.throughput_window_ms as i64;
+        let base = h.iter().find(|p| p.t_ms >= from).or_else(|| h.back())?;
+        let dt = (t_ms - base.t_ms) as f64 / 1000.0;
+        (dt >= 0.2).then(|| records_in.saturating_sub(base.records_in) as f64 / dt)
+    }
+
+    /// Everything the status page shows, read now.
+    pub fn status(&self) -> StatusReport {
+        self.refresh_gauges();
+        let t_ms = now_ms();
+        let m = &self.metrics;
+        let records_in = m.records_in.get();
+        let view = self.model.current();
+        let feedback = self.feedback.lock().expect("feedback lock").summary(&view.classes);
+        let (reviews_seen, recent_reviews) = self.reviews.lock().expect("reviews lock").clone();
+        let dead: u64 = crate::io::headers::REASONS
+            .iter()
+            .map(|r| m.dead_lettered.get_metric_with_label_values(&[r]).map(|c| c.get()).unwrap_or(0))
+            .sum();
+        let d = &m.drift;
+        StatusReport {
+            generated_at_ms: t_ms,
+            uptime_seconds: self.started.elapsed().as_secs_f64(),
+            drift_enabled: self.drift.enabled,
+            throughput: Throughput {
+                records_in,
+                records_out: m.records_out.get(),
+                records_reviewed: m.records_reviewed.get(),
+                records_dead_lettered: dead,
+                records_per_second: self.rate_at(t_ms, records_in),
+                window_seconds: self.page.throughput_window_ms as f64 / 1000.0,
+            },
+            decisions: self.decisions.lock().expect("decisions lock").clone(),
+            feedback,
+            freshness: Freshness {
+                model_version: view.meta.model_version.clone(),
+                classes: view.classes.len(),
+                labels_learned: d.labels_learned.get(),
+                snapshots_written: d.snapshots_written.get(),
+                snapshot_age_seconds: d.snapshot_age.get(),
+                reload_age_seconds: d.reload_age.get(),
+                reloads_ok: d.reloads.with_label_values(&["ok"]).get(),
+                reloads_failed: d.reloads.with_label_values(&["error"]).get(),
+                seconds_since_last_label: d.feedback_since_last_label.get(),
+            },
+            consumer_lag_records: d.consumer_lag.get(),
+            thresholds: self.drift.thresholds.clone(),
+            page_hinkley_lambda: self.drift.page_hinkley_lambda,
+            recent_reviews,
+            reviews_seen,
+            history: self.history.lock().expect("history lock").iter().copied().collect(),
+            refresh_ms: self.page.refresh_ms,
+        }
+    }
+
+    /// Milliseconds since the Unix epoch when the monitor started.
+    pub fn started_ms(&self) -> i64 {
+        self.started_ms
+    }
+}
+
+/// Feedback gauges from a summary; per-class series only for the model's classes.
+fn export_feedback(m: &Metrics, s: &FeedbackSummary, classes: &[Arc<str>]) {
+    let d = &m.drift;
+    d.feedback_accuracy.set(s.accuracy.unwrap_or(f64::NAN));
+    d.feedback_window_labels.set(s.window_labels as i64);
+    d.feedback_change_detected.set(s.change_active as i64);
+    d.feedback_page_hinkley.set(s.page_hinkley_statistic);
+    for c in classes {
+        match s.per_class.iter().find(|a| a.class == c.as_ref()) {
+            Some(a) => d.feedback_class_accuracy.with_label_values(&[c.as_ref()]).set(a.accuracy),
+            None => {
+                let _ = d.feedback_class_accuracy.remove_label_values(&[c.as_ref()]);
+            }
+        }
+    }
+}
+
+/// The record loop's side: counters per record, a summary every `publish_every_records`
+/// records or at the first record after `publish_interval_ms`.
+pub struct DecisionObserver {
+    monitor: Arc<DriftMonitor>,
+    tracker: DecisionTracker,
+    reviews: ReviewRing,
+    published_reviews: u64,
+    confidence: LocalHistogram,
+    since_publish: u64,
+    every: u64,
+    interval: Duration,
+    last_publish: Instant,
+    /// The view the class indices refer to (its address), and the reload generation seen.
+    view_id: usize,
+    generation: u64,
+}
+
+impl DecisionObserver {
+    fn new(monitor: Arc<DriftMonitor>) -> DecisionObserver {
+        let view = monitor.model.current();
+        let d = &monitor.drift;
+        let page = &monitor.page;
+        DecisionObserver {
+            tracker: DecisionTracker::new(decision_params(d), &view.classes),
+            reviews: ReviewRing::new(page.recent_reviews, page.text_chars),
+            published_reviews: 0,
+            confidence: monitor.metrics.drift.decision_confidence.local(),
+            since_publish: 0,
+            every: d.publish_every_records,
+            interval: Duration::from_millis(d.publish_interval_ms),
+            last_publish: Instant::now(),
+            view_id: Arc::as_ptr(&view) as usize,
+            generation: monitor.reload_generation.load(Ordering::Relaxed),
+            monitor,
+        }
+    }
+
+    /// One routed record. `now` is any recent instant (the pipeline's own timestamp).
+    #[inline]
+    pub fn observe(&mut self, view: &Arc<ModelView>, decision: &Decision, scratch: &RouteScratch, now: Instant) {
+        if Arc::as_ptr(view) as usize != self.view_id {
+            self.view_changed(view);
+        }
+        let model = &view.model;
+        let (class, (known, total)) = match scratch.model_score() {
+            Some((scored, s)) if view.classes[scored.best].as_ref() == decision.class => {
+                (Some(scored.best), known_from_score(model, scored, s))
+            }
+            Some((scored, s)) => (model.class_index(&decision.class), known_from_score(model, scored, s)),
+            None => (model.class_index(&decision.class), known_tokens(model, scratch.bag())),
+        };
+        let review = decision.review.is_some();
+        self.tracker.observe(&Observation {
+            class,
+            confidence: decision.confidence,
+            known_tokens: known,
+            total_tokens: total,
+            review,
+        });
+        self.confidence.observe(decision.confidence);
+        if let Some(reason) = &decision.review {
+            self.reviews.push(
+                decision.id.as_deref(),
+                &decision.class,
+                decision.confidence,
+                reason.label(),
+                scratch.fields().iter().map(|(t, _)| t.as_str()),
+            );
+        }
+        self.since_publish += 1;
+        if self.since_publish >= self.every || now.saturating_duration_since(self.last_publish) >= self.interval {
+            self.publish(view, now);
+        }
+    }
+
+    #[cold]
+    fn view_changed(&mut self, view: &Arc<ModelView>) {
+        self.view_id = Arc::as_ptr(view) as usize;
+        self.tracker.set_classes(&view.classes);
+        let g = self.monitor.reload_generation.load(Ordering::Relaxed);
+        if g != self.generation {
+            self.generation = g;
+            self.tracker.repin();
+        }
+    }
+
+    /// Summarise into gauges and the status page's copy now.
+    pub fn publish(&mut self, view: &ModelView, now: Instant) {
+        self.since_publish = 0;
+        self.last_publish = now;
+        self.confidence.flush();
+        let s = self.tracker.summarise(view.model.doc_counts());
+        let d = &self.monitor.metrics.drift;
+        d.window_records.set(s.window_records as i64);
+        d.class_mix_psi.set(s.psi.unwrap_or(f64::NAN));
+        d.class_mix_js_bits.set(s.js_divergence_bits.unwrap_or(f64::NAN));
+        d.unknown_tokens.set(s.oov_token_ratio.unwrap_or(f64::NAN));
+        d.mostly_unknown_records.set(s.oov_record_ratio.unwrap_or(f64::NAN));
+        d.confidence_mean.set(s.confidence_mean.unwrap_or(f64::NAN));
+        d.review_ratio.set(s.review_ratio.unwrap_or(f64::NAN));
+        let stale = {
+            let prev = self.monitor.decisions.lock().expect("decisions lock");
+            prev.as_ref().is_some_and(|p| p.class_mix.iter().map(|c| &c.class).ne(s.class_mix.iter().map(|c| &c.class)))
+        };
+        if stale {
+            d.class_share.reset();
+        }
+        for c in &s.class_mix {
+            d.class_share.with_label_values(&[c.class.as_str(), "window"]).set(c.window);
+            d.class_share.with_label_values(&[c.class.as_str(), "reference"]).set(c.reference.unwrap_or(f64::NAN));
+        }
+        *self.monitor.decisions.lock().expect("decisions lock") = Some(s);
+        if self.reviews.seen() != self.published_reviews {
+            self.published_reviews = self.reviews.seen();
+            *self.monitor.reviews.lock().expect("reviews lock") = (self.reviews.seen(), self.reviews.newest_first());
+        }
+    }
+}
