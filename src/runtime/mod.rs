@@ -1,6 +1,7 @@
 //! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model view seam, shutdown, and `Service` that wires them from settings.
 
 pub mod ack;
+pub mod drift_observer;
 pub mod error;
 pub mod model_view;
 pub mod monitor;

@@ -1,4 +1,4 @@
-//! The service side of drift and health: `DriftMonitor` (shared; the learner's feedback and freshness calls, the status page's history, gauges refreshed at each scrape) and `DecisionObserver` (owned by the record loop; plain counters per record, summarised into gauges every few hundred records).
+//! The service side of drift and health: `DriftMonitor`, shared by the record loop's observer (`drift_observer`), the learner's feedback and freshness calls, the status page's history and the scrape, which refreshes the time-based gauges.
 //!
 //! Where the learner calls in (issue 4): `Service::drift()` hands out the
 //! monitor. For each complete label, score its record with the current model
@@ -11,21 +11,18 @@
 use std::collections::VecDeque;
 use std::sync::atomic::{AtomicI64, AtomicU64, Ordering};
 use std::sync::{Arc, Mutex};
-use std::time::{Duration, Instant};
+use std::time::Instant;
 
-use prometheus::local::LocalHistogram;
 use serde::Serialize;
 
-use crate::decide::Decision;
-use crate::drift::oov::{known_from_score, known_tokens};
 use crate::drift::{
-    DecisionParams, DecisionSummary, DecisionTracker, FeedbackMonitor, FeedbackParams, FeedbackSummary,
-    Observation, PageHinkleyParams, ReferenceKind, ReviewRing, ReviewedRecord,
+    DecisionParams, DecisionSummary, FeedbackMonitor, FeedbackParams, FeedbackSummary, PageHinkleyParams,
+    ReferenceKind, ReviewedRecord,
 };
 use crate::metrics::Metrics;
-use crate::runtime::model_view::{ModelHandle, ModelView};
+pub use crate::runtime::drift_observer::DecisionObserver;
+use crate::runtime::model_view::ModelHandle;
 use crate::runtime::now_ms;
-use crate::runtime::router::RouteScratch;
 use crate::settings::{DriftReference, DriftSettings, DriftThresholds, StatusPageSettings};
 
 /// The decision side's settings from `[drift]`.
@@ -116,21 +113,21 @@ pub struct StatusReport {
 
 /// Shared by the record loop, the learner, the admin endpoint and the sampler.
 pub struct DriftMonitor {
-    drift: DriftSettings,
-    page: StatusPageSettings,
-    metrics: Arc<Metrics>,
-    model: ModelHandle,
+    pub(crate) drift: DriftSettings,
+    pub(crate) page: StatusPageSettings,
+    pub(crate) metrics: Arc<Metrics>,
+    pub(crate) model: ModelHandle,
     started: Instant,
     started_ms: i64,
     feedback: Mutex<FeedbackMonitor>,
-    decisions: Mutex<Option<DecisionSummary>>,
-    reviews: Mutex<(u64, Vec<ReviewedRecord>)>,
+    pub(crate) decisions: Mutex<Option<DecisionSummary>>,
+    pub(crate) reviews: Mutex<(u64, Vec<ReviewedRecord>)>,
     history: Mutex<VecDeque<HistoryPoint>>,
     last_label_ms: AtomicI64,
     last_snapshot_ms: AtomicI64,
     last_reload_ms: AtomicI64,
     /// Bumped by a reload; the record loop re-pins its baseline when it sees a new value.
-    reload_generation: AtomicU64,
+    pub(crate) reload_generation: AtomicU64,
 }
 
 impl DriftMonitor {
@@ -154,6 +151,8 @@ impl DriftMonitor {
             reload_generation: AtomicU64::new(0),
         };
         m.refresh_gauges();
+        let view = m.model.current();
+        export_feedback(&m.metrics, &m.feedback.lock().expect("feedback lock").summary(&view.classes), &view.classes);
         m
     }
 
@@ -324,131 +323,9 @@ fn export_feedback(m: &Metrics, s: &FeedbackSummary, classes: &[Arc<str>]) {
     d.feedback_window_labels.set(s.window_labels as i64);
     d.feedback_change_detected.set(s.change_active as i64);
     d.feedback_page_hinkley.set(s.page_hinkley_statistic);
+    // One series per model class (bounded); NaN while a class has too few labels in the window.
     for c in classes {
-        match s.per_class.iter().find(|a| a.class == c.as_ref()) {
-            Some(a) => d.feedback_class_accuracy.with_label_values(&[c.as_ref()]).set(a.accuracy),
-            None => {
-                let _ = d.feedback_class_accuracy.remove_label_values(&[c.as_ref()]);
-            }
-        }
-    }
-}
-
-/// The record loop's side: counters per record, a summary every `publish_every_records`
-/// records or at the first record after `publish_interval_ms`.
-pub struct DecisionObserver {
-    monitor: Arc<DriftMonitor>,
-    tracker: DecisionTracker,
-    reviews: ReviewRing,
-    published_reviews: u64,
-    confidence: LocalHistogram,
-    since_publish: u64,
-    every: u64,
-    interval: Duration,
-    last_publish: Instant,
-    /// The view the class indices refer to (its address), and the reload generation seen.
-    view_id: usize,
-    generation: u64,
-}
-
-impl DecisionObserver {
-    fn new(monitor: Arc<DriftMonitor>) -> DecisionObserver {
-        let view = monitor.model.current();
-        let d = &monitor.drift;
-        let page = &monitor.page;
-        DecisionObserver {
-            tracker: DecisionTracker::new(decision_params(d), &view.classes),
-            reviews: ReviewRing::new(page.recent_reviews, page.text_chars),
-            published_reviews: 0,
-            confidence: monitor.metrics.drift.decision_confidence.local(),
-            since_publish: 0,
-            every: d.publish_every_records,
-            interval: Duration::from_millis(d.publish_interval_ms),
-            last_publish: Instant::now(),
-            view_id: Arc::as_ptr(&view) as usize,
-            generation: monitor.reload_generation.load(Ordering::Relaxed),
-            monitor,
-        }
-    }
-
-    /// One routed record. `now` is any recent instant (the pipeline's own timestamp).
-    #[inline]
-    pub fn observe(&mut self, view: &Arc<ModelView>, decision: &Decision, scratch: &RouteScratch, now: Instant) {
-        if Arc::as_ptr(view) as usize != self.view_id {
-            self.view_changed(view);
-        }
-        let model = &view.model;
-        let (class, (known, total)) = match scratch.model_score() {
-            Some((scored, s)) if view.classes[scored.best].as_ref() == decision.class => {
-                (Some(scored.best), known_from_score(model, scored, s))
-            }
-            Some((scored, s)) => (model.class_index(&decision.class), known_from_score(model, scored, s)),
-            None => (model.class_index(&decision.class), known_tokens(model, scratch.bag())),
-        };
-        let review = decision.review.is_some();
-        self.tracker.observe(&Observation {
-            class,
-            confidence: decision.confidence,
-            known_tokens: known,
-            total_tokens: total,
-            review,
-        });
-        self.confidence.observe(decision.confidence);
-        if let Some(reason) = &decision.review {
-            self.reviews.push(
-                decision.id.as_deref(),
-                &decision.class,
-                decision.confidence,
-                reason.label(),
-                scratch.fields().iter().map(|(t, _)| t.as_str()),
-            );
-        }
-        self.since_publish += 1;
-        if self.since_publish >= self.every || now.saturating_duration_since(self.last_publish) >= self.interval {
-            self.publish(view, now);
-        }
-    }
-
-    #[cold]
-    fn view_changed(&mut self, view: &Arc<ModelView>) {
-        self.view_id = Arc::as_ptr(view) as usize;
-        self.tracker.set_classes(&view.classes);
-        let g = self.monitor.reload_generation.load(Ordering::Relaxed);
-        if g != self.generation {
-            self.generation = g;
-            self.tracker.repin();
-        }
-    }
-
-    /// Summarise into gauges and the status page's copy now.
-    pub fn publish(&mut self, view: &ModelView, now: Instant) {
-        self.since_publish = 0;
-        self.last_publish = now;
-        self.confidence.flush();
-        let s = self.tracker.summarise(view.model.doc_counts());
-        let d = &self.monitor.metrics.drift;
-        d.window_records.set(s.window_records as i64);
-        d.class_mix_psi.set(s.psi.unwrap_or(f64::NAN));
-        d.class_mix_js_bits.set(s.js_divergence_bits.unwrap_or(f64::NAN));
-        d.unknown_tokens.set(s.oov_token_ratio.unwrap_or(f64::NAN));
-        d.mostly_unknown_records.set(s.oov_record_ratio.unwrap_or(f64::NAN));
-        d.confidence_mean.set(s.confidence_mean.unwrap_or(f64::NAN));
-        d.review_ratio.set(s.review_ratio.unwrap_or(f64::NAN));
-        let stale = {
-            let prev = self.monitor.decisions.lock().expect("decisions lock");
-            prev.as_ref().is_some_and(|p| p.class_mix.iter().map(|c| &c.class).ne(s.class_mix.iter().map(|c| &c.class)))
-        };
-        if stale {
-            d.class_share.reset();
-        }
-        for c in &s.class_mix {
-            d.class_share.with_label_values(&[c.class.as_str(), "window"]).set(c.window);
-            d.class_share.with_label_values(&[c.class.as_str(), "reference"]).set(c.reference.unwrap_or(f64::NAN));
-        }
-        *self.monitor.decisions.lock().expect("decisions lock") = Some(s);
-        if self.reviews.seen() != self.published_reviews {
-            self.published_reviews = self.reviews.seen();
-            *self.monitor.reviews.lock().expect("reviews lock") = (self.reviews.seen(), self.reviews.newest_first());
-        }
+        let v = s.per_class.iter().find(|a| a.class == c.as_ref()).map_or(f64::NAN, |a| a.accuracy);
+        d.feedback_class_accuracy.with_label_values(&[c.as_ref()]).set(v);
     }
 }
