@@ -329,3 +329,141 @@ fn export_feedback(m: &Metrics, s: &FeedbackSummary, classes: &[Arc<str>]) {
         d.feedback_class_accuracy.with_label_values(&[c.as_ref()]).set(v);
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::features::Vocabulary;
+    use crate::io::message::Inbound;
+    use crate::model::snapshot::SnapshotMeta;
+    use crate::model::{Model, NbParams};
+    use crate::runtime::model_view::ModelView;
+    use crate::runtime::router::{RouteScratch, Router};
+    use crate::settings::Settings;
+    use crate::text::TermBag;
+
+    fn handle(settings: &Settings) -> ModelHandle {
+        let mut m = Model::new(
+            NbParams::multinomial(1.0),
+            settings.analyzer.clone(),
+            vec!["billing".into(), "shipping".into()],
+            Vocabulary::new(settings.model.vocabulary, 1000, 0),
+        )
+        .unwrap();
+        for _ in 0..3 {
+            m.learn(&TermBag::from_pairs([("refund", 1.0), ("card", 1.0)]), "billing", 1.0).unwrap();
+        }
+        m.learn(&TermBag::from_pairs([("parcel", 1.0), ("late", 1.0)]), "shipping", 1.0).unwrap();
+        let meta = SnapshotMeta::fresh(&m, Some("test".into()));
+        ModelHandle::new(ModelView::new(m, meta, "x".into(), "test".into()))
+    }
+
+    fn monitor(settings: &Settings) -> (Arc<DriftMonitor>, Arc<Metrics>) {
+        let metrics = Arc::new(Metrics::new());
+        let h = handle(settings);
+        (Arc::new(DriftMonitor::new(&settings.drift, &settings.status_page, metrics.clone(), h)), metrics)
+    }
+
+    fn line(text: &str) -> String {
+        format!("{{\"id\":\"r\",\"text\":\"{text}\"}}")
+    }
+
+    #[test]
+    fn feedback_api_drives_the_feedback_metrics() {
+        let mut s = Settings::defaults();
+        s.drift.feedback_min_class_labels = 2;
+        let (mon, metrics) = monitor(&s);
+        mon.observe_feedback("billing", "billing", Some(30.0));
+        mon.observe_feedback("billing", "billing", Some(90.0));
+        mon.observe_feedback("shipping", "billing", None);
+        mon.observe_feedback("shipping", "shipping", Some(3.0));
+        mon.observe_feedback("billing", "unseen_class", Some(3.0));
+        let d = &metrics.drift;
+        assert_eq!(d.feedback_labels.with_label_values(&["correct"]).get(), 3);
+        assert_eq!(d.feedback_labels.with_label_values(&["wrong"]).get(), 2);
+        assert!((d.feedback_accuracy.get() - 0.6).abs() < 1e-12);
+        assert_eq!(d.feedback_window_labels.get(), 5);
+        assert!((d.feedback_class_accuracy.with_label_values(&["billing"]).get() - 2.0 / 3.0).abs() < 1e-12);
+        assert!(d.feedback_class_accuracy.with_label_values(&["shipping"]).get().is_nan(), "one shipping label < 2");
+        assert_eq!(d.feedback_label_delay.get_sample_count(), 4);
+        assert!((d.feedback_label_delay.get_sample_sum() - 126.0).abs() < 1e-9);
+        let text = metrics.render();
+        assert!(!text.contains("unseen_class"), "a label's class outside the model never becomes a label value");
+        // A steady stretch (1 in 20 wrong), then a burst of wrong labels: a detection, the flag
+        // up, the counter counts it.
+        for i in 0..300 {
+            mon.observe_feedback("billing", if i % 20 == 0 { "shipping" } else { "billing" }, Some(1.0));
+        }
+        assert_eq!(d.feedback_changes.get(), 0, "no alarm on the steady stretch");
+        for _ in 0..60 {
+            mon.observe_feedback("billing", "shipping", Some(1.0));
+        }
+        assert_eq!(d.feedback_change_detected.get(), 1);
+        assert!(d.feedback_changes.get() >= 1);
+        assert!(mon.status().feedback.change_active);
+    }
+
+    #[test]
+    fn freshness_calls_move_counters_and_ages() {
+        let s = Settings::defaults();
+        let (mon, metrics) = monitor(&s);
+        let d = &metrics.drift;
+        mon.observe_labels_learned(7);
+        mon.observe_labels_learned(3);
+        assert_eq!(d.labels_learned.get(), 10);
+        mon.observe_snapshot_written();
+        mon.observe_reload();
+        mon.observe_reload_failed();
+        mon.refresh_gauges();
+        assert_eq!(d.snapshots_written.get(), 1);
+        assert_eq!(d.reloads.with_label_values(&["ok"]).get(), 1);
+        assert_eq!(d.reloads.with_label_values(&["error"]).get(), 1);
+        assert!(d.snapshot_age.get() >= 0.0 && d.snapshot_age.get() < 5.0);
+        assert!(d.reload_age.get() >= 0.0 && d.reload_age.get() < 5.0);
+        let st = mon.status();
+        assert_eq!((st.freshness.labels_learned, st.freshness.reloads_failed), (10, 1));
+    }
+
+    #[test]
+    fn the_record_loop_observer_publishes_window_statistics() {
+        let mut s = Settings::defaults();
+        s.drift.window_records = 100;
+        s.drift.min_records = 10;
+        s.drift.publish_every_records = 20;
+        s.review.min_confidence = 0.8;
+        s.status_page.recent_reviews = 3;
+        s.status_page.text_chars = 12;
+        let (mon, metrics) = monitor(&s);
+        let router = Router::new(&s).unwrap();
+        let view = mon.model.current();
+        let mut obs = mon.observer().expect("enabled by default");
+        let mut scratch = RouteScratch::default();
+        // Training mix 3:1; the stream is all "shipping": the class mix moves far.
+        for i in 0..40 {
+            let text = if i % 10 == 0 { "glowring firmware pairing" } else { "parcel late parcel" };
+            let payload = line(text);
+            let rec = Inbound { topic: "t", partition: 0, offset: i, key: None, payload: Some(payload.as_bytes()), headers: Vec::new(), timestamp_ms: None };
+            let (_, d) = router.route(&view, &rec, &mut scratch);
+            obs.observe(&view, d.as_ref().unwrap(), &scratch, Instant::now());
+        }
+        let d = &metrics.drift;
+        assert_eq!(d.window_records.get(), 40);
+        let summary = mon.status().decisions.expect("published after 20 records");
+        let shipping = summary.class_mix.iter().find(|c| c.class == "shipping").unwrap();
+        assert!((shipping.reference.unwrap() - 0.25).abs() < 1e-12);
+        // Unknown-only records are scored by priors alone: billing, 0.75: reviewed (< 0.8).
+        assert!((shipping.window - 0.9).abs() < 1e-12, "{summary:?}");
+        assert!(d.class_mix_psi.get() > 0.25, "psi {}", d.class_mix_psi.get());
+        // 4 records of 3 unknown tokens among 40 records of 3 tokens.
+        assert!((d.unknown_tokens.get() - 0.1).abs() < 1e-12);
+        assert!((d.mostly_unknown_records.get() - 0.1).abs() < 1e-12);
+        assert!((d.review_ratio.get() - 0.1).abs() < 1e-12);
+        assert_eq!(d.decision_confidence.get_sample_count(), 40);
+        assert_eq!(d.class_share.with_label_values(&["shipping", "window"]).get(), 0.9);
+        let st = mon.status();
+        assert_eq!(st.reviews_seen, 4);
+        assert_eq!(st.recent_reviews.len(), 3);
+        assert_eq!(st.recent_reviews[0].text, "glowring fir…");
+        assert_eq!(st.recent_reviews[0].reason, "low_confidence");
+    }
+}
