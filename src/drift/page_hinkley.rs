@@ -9,8 +9,8 @@
 //! catching is a common choice, from memory); λ trades false alarms against
 //! delay. After a rise of the mean by Δ > δ, PH grows by about Δ − δ per value,
 //! so the expected delay is about λ / (Δ − δ) values; allow twice that for
-//! the slowest detections. Defaults (δ = 0.05, λ = 20) were chosen by
-//! simulation of Bernoulli error streams: no alarm in 300 runs of 5,000 values
+//! the slowest detections. Defaults (δ = 0.05, λ = 20) were chosen by a
+//! simulation of Bernoulli error streams during development (not kept): no alarm in 300 runs of 5,000 values
 //! at error rates 0.05 and 0.1, one at 0.2; a rise from 0.1 to 0.4 caught after
 //! a median of 76 values (about λ / (0.3 − 0.05) = 80), at most 164.
 
