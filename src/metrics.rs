@@ -24,6 +24,22 @@ pub const DRAIN_TIMEOUTS: &str = "sieveline_drain_timeouts_total";
 pub const CONSUMER_ERRORS: &str = "sieveline_consumer_errors_total";
 pub const MODEL_CLASSES: &str = "sieveline_model_classes";
 
+// Online learning (docs/learning.md).
+pub const LABELS_READ: &str = "sieveline_labels_read_total";
+pub const LABELS_LEARNED: &str = "sieveline_labels_learned_total";
+pub const LABEL_CORRECTIONS: &str = "sieveline_label_corrections_total";
+pub const LABELS_REJECTED: &str = "sieveline_labels_rejected_total";
+pub const LABELS_RESOLVED: &str = "sieveline_labels_resolved_total";
+pub const LABEL_LOG_ERRORS: &str = "sieveline_label_log_errors_total";
+pub const LABEL_LOG_CAUGHT_UP: &str = "sieveline_label_log_caught_up";
+pub const RECENT_RECORDS: &str = "sieveline_recent_records";
+pub const RECENT_RECORDS_LIMIT: &str = "sieveline_recent_records_limit";
+pub const MODEL_PUBLISHES: &str = "sieveline_model_publishes_total";
+pub const MODEL_LABELS_APPLIED: &str = "sieveline_model_labels_applied";
+pub const LABEL_PUBLISH_DELAY: &str = "sieveline_label_publish_delay_seconds";
+pub const SNAPSHOTS: &str = "sieveline_snapshots_total";
+pub const LAST_SNAPSHOT: &str = "sieveline_last_snapshot_timestamp_seconds";
+pub const MODEL_LOADS: &str = "sieveline_model_loads_total";
 // Drift and health (docs/drift.md). Ratios are 0..1; the index and divergence are unitless / bits.
 pub const DRIFT_WINDOW_RECORDS: &str = "sieveline_drift_window_records";
 pub const DRIFT_CLASS_MIX_PSI: &str = "sieveline_drift_class_mix_psi";
@@ -43,10 +59,7 @@ pub const FEEDBACK_CHANGE_DETECTED: &str = "sieveline_feedback_change_detected";
 pub const FEEDBACK_CHANGES: &str = "sieveline_feedback_changes_detected_total";
 pub const FEEDBACK_PAGE_HINKLEY: &str = "sieveline_feedback_page_hinkley_statistic";
 pub const FEEDBACK_SINCE_LAST_LABEL: &str = "sieveline_feedback_seconds_since_last_label";
-pub const MODEL_LABELS_LEARNED: &str = "sieveline_model_labels_learned_total";
-pub const MODEL_SNAPSHOTS_WRITTEN: &str = "sieveline_model_snapshots_written_total";
 pub const MODEL_SNAPSHOT_AGE: &str = "sieveline_model_snapshot_age_seconds";
-pub const MODEL_RELOADS: &str = "sieveline_model_reloads_total";
 pub const MODEL_RELOAD_AGE: &str = "sieveline_model_reload_age_seconds";
 pub const CONSUMER_LAG: &str = "sieveline_consumer_lag_records";
 
@@ -78,6 +91,21 @@ pub struct Metrics {
     pub drain_timeouts: IntCounter,
     pub consumer_errors: IntCounter,
     pub model_classes: IntGauge,
+    pub labels_read: IntCounter,
+    pub labels_learned: IntCounter,
+    pub label_corrections: IntCounter,
+    pub labels_rejected: IntCounterVec,
+    pub labels_resolved: IntCounter,
+    pub label_log_errors: IntCounter,
+    pub label_log_caught_up: IntGauge,
+    pub recent_records: IntGauge,
+    pub recent_records_limit: IntGauge,
+    pub model_publishes: IntCounter,
+    pub model_labels_applied: IntGauge,
+    pub label_publish_delay: Histogram,
+    pub snapshots: IntCounterVec,
+    pub last_snapshot: IntGauge,
+    pub model_loads: IntCounterVec,
     pub drift: DriftMetrics,
 }
 
@@ -132,6 +160,29 @@ impl Metrics {
             drain_timeouts: counter(DRAIN_TIMEOUTS, "Drains (revoke or shutdown) that hit their time limit with records in flight."),
             consumer_errors: counter(CONSUMER_ERRORS, "Errors reported by the Kafka consumer (the client retries by itself)."),
             model_classes: gauge(MODEL_CLASSES, "Classes of the model being served."),
+            labels_read: counter(LABELS_READ, "Label events read from the learned-label log (every replica reads all of them)."),
+            labels_learned: counter(LABELS_LEARNED, "Label events folded into the model, corrections included."),
+            label_corrections: counter(LABEL_CORRECTIONS, "Label events that replaced an earlier label of the same record."),
+            labels_rejected: counter_vec(
+                LABELS_REJECTED,
+                "Label events refused (learned-label log or id-only labels), by reason; each becomes a dead letter.",
+                LABEL_REASON,
+            ),
+            labels_resolved: counter(LABELS_RESOLVED, "Id-only labels resolved into complete events and acknowledged on the learned-label topic."),
+            label_log_errors: counter(LABEL_LOG_ERRORS, "Errors reading the label log (the reader retries)."),
+            label_log_caught_up: gauge(LABEL_LOG_CAUGHT_UP, "1 once the learner has read every label-log partition to its end since start or reload."),
+            recent_records: gauge(RECENT_RECORDS, "Records in the recent-record cache that resolves id-only labels."),
+            recent_records_limit: gauge(RECENT_RECORDS_LIMIT, "Capacity of the recent-record cache (learning.recent_capacity)."),
+            model_publishes: counter(MODEL_PUBLISHES, "Model views published to the scorers by the learner or a reload."),
+            model_labels_applied: gauge(MODEL_LABELS_APPLIED, "Labels learned on top of the served base model file."),
+            label_publish_delay: histogram(
+                LABEL_PUBLISH_DELAY,
+                "From a label event's log timestamp to the publish of the first view that includes it.",
+                prometheus::exponential_buckets(0.001, 2.0, 16).expect("buckets"),
+            ),
+            snapshots: counter_vec(SNAPSHOTS, "Model snapshots written, by result.", LABEL_RESULT),
+            last_snapshot: gauge(LAST_SNAPSHOT, "Unix time of the last snapshot written (0: none yet)."),
+            model_loads: counter_vec(MODEL_LOADS, "Model files loaded by the learner (start and reload), by result (ok, refused).", LABEL_RESULT),
             drift: DriftMetrics::register(&registry),
             registry,
         }
@@ -167,10 +218,7 @@ pub struct DriftMetrics {
     pub feedback_changes: IntCounter,
     pub feedback_page_hinkley: Gauge,
     pub feedback_since_last_label: Gauge,
-    pub labels_learned: IntCounter,
-    pub snapshots_written: IntCounter,
     pub snapshot_age: Gauge,
-    pub reloads: IntCounterVec,
     pub reload_age: Gauge,
     pub consumer_lag: IntGauge,
 }
@@ -260,25 +308,15 @@ impl DriftMetrics {
             feedback_changes: counter(FEEDBACK_CHANGES, "Page-Hinkley detections of a rise in the feedback error rate."),
             feedback_page_hinkley: gauge(FEEDBACK_PAGE_HINKLEY, "The Page-Hinkley statistic on the feedback error stream (alarm above drift.page_hinkley_lambda)."),
             feedback_since_last_label: gauge(FEEDBACK_SINCE_LAST_LABEL, "Seconds since the last label arrived (since start if none has)."),
-            labels_learned: counter(MODEL_LABELS_LEARNED, "Labels the served model learned in this process."),
-            snapshots_written: counter(MODEL_SNAPSHOTS_WRITTEN, "Model snapshots this process wrote."),
             snapshot_age: gauge(
                 MODEL_SNAPSHOT_AGE,
                 "Seconds since the newest of: the served snapshot's creation time, the last snapshot this process wrote.",
-            ),
-            reloads: reg(
-                registry,
-                IntCounterVec::new(Opts::new(MODEL_RELOADS, "Model reloads from a snapshot file, by result (ok, error)."), &[LABEL_RESULT])
-                    .expect("valid counter"),
             ),
             reload_age: gauge(MODEL_RELOAD_AGE, "Seconds since the served model was loaded from a file (start counts as a load)."),
             consumer_lag: igauge(CONSUMER_LAG, "Records behind the end of the assigned source partitions, summed (librdkafka statistics)."),
         };
         for r in ["correct", "wrong"] {
             m.feedback_labels.with_label_values(&[r]);
-        }
-        for r in ["ok", "error"] {
-            m.reloads.with_label_values(&[r]);
         }
         m
     }

@@ -14,7 +14,8 @@
 //!   runs; its records-read and throughput agree with `/metrics` read at the same moment; a
 //!   screenshot is kept under `SIEVELINE_TEST_OUTPUT/service/status-page-*/status-page.png`.
 //! - `dashboard_references_only_metrics_the_service_exports` — every metric in
-//!   `deploy/grafana/sieveline.json` is in a live `/metrics`, and every panel has a unit.
+//!   `deploy/grafana/sieveline.json` is in a live `/metrics` (learning on, so the learner's
+//!   test-then-train comparisons fill the feedback metrics), and every panel has a unit.
 //! - `status_page_and_its_data_need_the_token_when_one_is_set` — `/` and `/status.json` answer
 //!   401 without `Authorization: Bearer` (RFC 6750) when a token is set; `/metrics` does not.
 
@@ -459,12 +460,21 @@ fn status_page_in_headless_chromium_shows_live_numbers_that_agree_with_metrics()
 fn dashboard_references_only_metrics_the_service_exports() {
     let dir = test_dir("dashboard");
     let model = train(&dir);
-    let stream = phases(&generate(&dir, 23, 4000));
-    let mut svc = Service::start(&dir, &model, "");
+    let gen = generate(&dir, 23, 4000);
+    let stream = phases(&gen);
+    // Learning on, from the generator's label log: the learner compares each label with the
+    // decision the model made before learning it, so the feedback metrics have values too.
+    let learning = format!("\n[learning]\nenabled = true\nlabel_path = \"{}\"\n", gen.join("logs.labels.jsonl").display());
+    let mut svc = Service::start(&dir, &model, &learning);
     svc.feed(&stream.p1[..600], 2000);
     wait_for(Duration::from_secs(20), "600 records read", || (svc.sample("sieveline_records_in_total") >= 600.0).then_some(()));
     std::thread::sleep(Duration::from_millis(500));
     let text = svc.metrics_text();
+    let labels = common::parse_metrics_reference(&text);
+    let compared = common::sample_sum(&labels, "sieveline_feedback_labels_total");
+    assert!(compared >= 100.0, "labels compared with earlier decisions: {compared}");
+    let accuracy = common::sample(&labels, "sieveline_feedback_accuracy_ratio", &[]);
+    assert!(accuracy > 0.5 && accuracy <= 1.0, "feedback accuracy {accuracy}");
     let exported: std::collections::BTreeSet<&str> = text
         .lines()
         .filter(|l| !l.starts_with('#') && !l.is_empty())
@@ -503,12 +513,12 @@ fn dashboard_references_only_metrics_the_service_exports() {
         "sieveline_model_snapshot_age_seconds",
         "sieveline_consumer_lag_records",
         "sieveline_records_dead_lettered_total",
-        "sieveline_model_reloads_total",
+        "sieveline_model_loads_total",
         "sieveline_feedback_seconds_since_last_label",
     ] {
         assert!(referenced.contains(must), "no panel shows {must}");
     }
-    println!("{} panels, {} metrics referenced, all exported", panels.len(), referenced.len());
+    println!("{} panels, {} metrics referenced, all exported; {compared} labels compared, feedback accuracy {accuracy:.3}", panels.len(), referenced.len());
     svc.finish();
 }
 

@@ -1,14 +1,18 @@
-//! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model view seam, shutdown, and `Service` that wires them from settings.
+//! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model view seam, the learner and its label log, resolving id-only labels, shutdown, and `Service` that wires them from settings.
 
 pub mod ack;
 pub mod drift_observer;
 pub mod error;
+pub mod label_log;
+pub mod learner;
 pub mod model_view;
 pub mod monitor;
 pub mod pipeline;
+pub mod resolver;
 pub mod router;
 pub mod service;
 pub mod shutdown;
+pub mod startup;
 pub mod status;
 pub mod watermark;
 

@@ -1,12 +1,11 @@
 //! The service side of drift and health: `DriftMonitor`, shared by the record loop's observer (`drift_observer`), the learner's feedback and freshness calls, the status page's history and the scrape, which refreshes the time-based gauges.
 //!
-//! Where the learner calls in (issue 4): `Service::drift()` hands out the
-//! monitor. For each complete label, score its record with the current model
-//! BEFORE learning it (test-then-train) and call
-//! `observe_feedback(predicted, true_class, delay_seconds)`; after applying
-//! labels call `observe_labels_learned(n)`; after writing a snapshot
-//! `observe_snapshot_written()`; after a reload from a file `observe_reload()`,
-//! or `observe_reload_failed()` when a file was refused.
+//! How the learner reports: `DriftMonitor` is a `LearnObserver`, which the
+//! service hands to the learner. For each label learned the learner passes the
+//! class the model gave the record just before learning it (test-then-train),
+//! which becomes `observe_feedback(predicted, true_class, delay_seconds)`;
+//! snapshots and reloads move the freshness ages. `Service::drift()` hands out
+//! the monitor for other callers of the same API.
 
 use std::collections::VecDeque;
 use std::sync::atomic::{AtomicI64, AtomicU64, Ordering};
@@ -19,8 +18,10 @@ use crate::drift::{
     DecisionParams, DecisionSummary, FeedbackMonitor, FeedbackParams, FeedbackSummary, PageHinkleyParams,
     ReferenceKind, ReviewedRecord,
 };
+use crate::learn::fold::Predicted;
 use crate::metrics::Metrics;
 pub use crate::runtime::drift_observer::DecisionObserver;
+use crate::runtime::learner::LearnObserver;
 use crate::runtime::model_view::ModelHandle;
 use crate::runtime::now_ms;
 use crate::settings::{DriftReference, DriftSettings, DriftThresholds, StatusPageSettings};
@@ -87,8 +88,9 @@ pub struct Freshness {
     pub snapshots_written: u64,
     pub snapshot_age_seconds: f64,
     pub reload_age_seconds: f64,
-    pub reloads_ok: u64,
-    pub reloads_failed: u64,
+    /// Model files loaded (start and reloads) and refused, as the learner counts them.
+    pub loads_ok: u64,
+    pub loads_refused: u64,
     pub seconds_since_last_label: f64,
 }
 
@@ -150,6 +152,12 @@ impl DriftMonitor {
             last_reload_ms: AtomicI64::new(now),
             reload_generation: AtomicU64::new(0),
         };
+        for r in ["ok", "refused"] {
+            m.metrics.model_loads.with_label_values(&[r]);
+        }
+        for r in ["ok", "error"] {
+            m.metrics.snapshots.with_label_values(&[r]);
+        }
         m.refresh_gauges();
         let view = m.model.current();
         export_feedback(&m.metrics, &m.feedback.lock().expect("feedback lock").summary(&view.classes), &view.classes);
@@ -187,20 +195,21 @@ impl DriftMonitor {
         export_feedback(&self.metrics, &summary, &view.classes);
     }
 
-    /// `n` labels were learned into the served model.
-    pub fn observe_labels_learned(&self, n: u64) {
-        self.metrics.drift.labels_learned.inc_by(n);
+    /// A label arrived that had no earlier decision to compare with (the model was empty, or a
+    /// correction): it still counts for "seconds since the last label". The learner counts
+    /// labels learned itself (`sieveline_labels_learned_total`).
+    pub fn observe_label(&self) {
+        self.last_label_ms.store(now_ms(), Ordering::Relaxed);
     }
 
-    /// A snapshot of the served model was written.
+    /// A snapshot of the served model was written (the learner counts it in `sieveline_snapshots_total`).
     pub fn observe_snapshot_written(&self) {
-        self.metrics.drift.snapshots_written.inc();
         self.last_snapshot_ms.store(now_ms(), Ordering::Relaxed);
     }
 
-    /// A new model was loaded from a file and is being served. A pinned baseline is counted again.
+    /// A new model was loaded from a file and is being served (the learner counts loads in
+    /// `sieveline_model_loads_total`). A pinned baseline is counted again.
     pub fn observe_reload(&self) {
-        self.metrics.drift.reloads.with_label_values(&["ok"]).inc();
         let now = now_ms();
         self.last_reload_ms.store(now, Ordering::Relaxed);
         let created = crate::clock::parse_rfc3339(&self.model.current().meta.created_at).map(|s| s * 1000);
@@ -208,11 +217,6 @@ impl DriftMonitor {
             self.last_snapshot_ms.fetch_max(c.min(now), Ordering::Relaxed);
         }
         self.reload_generation.fetch_add(1, Ordering::Relaxed);
-    }
-
-    /// A model file was refused; the old model stays.
-    pub fn observe_reload_failed(&self) {
-        self.metrics.drift.reloads.with_label_values(&["error"]).inc();
     }
 
     /// Set the time-based gauges (ages); called before each scrape and status answer.
@@ -292,12 +296,12 @@ impl DriftMonitor {
             freshness: Freshness {
                 model_version: view.meta.model_version.clone(),
                 classes: view.classes.len(),
-                labels_learned: d.labels_learned.get(),
-                snapshots_written: d.snapshots_written.get(),
+                labels_learned: m.labels_learned.get(),
+                snapshots_written: m.snapshots.with_label_values(&["ok"]).get(),
                 snapshot_age_seconds: d.snapshot_age.get(),
                 reload_age_seconds: d.reload_age.get(),
-                reloads_ok: d.reloads.with_label_values(&["ok"]).get(),
-                reloads_failed: d.reloads.with_label_values(&["error"]).get(),
+                loads_ok: m.model_loads.with_label_values(&["ok"]).get(),
+                loads_refused: m.model_loads.with_label_values(&["refused"]).get(),
                 seconds_since_last_label: d.feedback_since_last_label.get(),
             },
             consumer_lag_records: d.consumer_lag.get(),
@@ -313,6 +317,45 @@ impl DriftMonitor {
     /// Milliseconds since the Unix epoch when the monitor started.
     pub fn started_ms(&self) -> i64 {
         self.started_ms
+    }
+}
+
+impl LearnObserver for DriftMonitor {
+    fn learned(&self, class: &str, predicted: Option<&Predicted>, delay_secs: Option<f64>) {
+        match predicted {
+            Some(p) => self.observe_feedback(&p.class, class, delay_secs),
+            None => self.observe_label(),
+        }
+    }
+
+    fn snapshot_written(&self) {
+        self.observe_snapshot_written();
+    }
+
+    fn reloaded(&self) {
+        self.observe_reload();
+    }
+}
+
+/// Two learn observers in turn (the drift monitor and one given by an embedding program).
+pub struct BothObservers(pub Arc<dyn LearnObserver>, pub Arc<dyn LearnObserver>);
+
+impl LearnObserver for BothObservers {
+    fn learned(&self, class: &str, predicted: Option<&Predicted>, delay_secs: Option<f64>) {
+        self.0.learned(class, predicted, delay_secs);
+        self.1.learned(class, predicted, delay_secs);
+    }
+    fn published(&self, applied: u64) {
+        self.0.published(applied);
+        self.1.published(applied);
+    }
+    fn snapshot_written(&self) {
+        self.0.snapshot_written();
+        self.1.snapshot_written();
+    }
+    fn reloaded(&self) {
+        self.0.reloaded();
+        self.1.reloaded();
     }
 }
 
@@ -408,20 +451,20 @@ mod tests {
         let s = Settings::defaults();
         let (mon, metrics) = monitor(&s);
         let d = &metrics.drift;
-        mon.observe_labels_learned(7);
-        mon.observe_labels_learned(3);
-        assert_eq!(d.labels_learned.get(), 10);
-        mon.observe_snapshot_written();
-        mon.observe_reload();
-        mon.observe_reload_failed();
+        // Through the learner's observer interface.
+        let obs: &dyn LearnObserver = mon.as_ref();
+        obs.learned("billing", None, None);
+        obs.learned("billing", Some(&Predicted { class: "shipping".into(), confidence: 0.7 }), Some(2.0));
+        obs.snapshot_written();
+        obs.reloaded();
         mon.refresh_gauges();
-        assert_eq!(d.snapshots_written.get(), 1);
-        assert_eq!(d.reloads.with_label_values(&["ok"]).get(), 1);
-        assert_eq!(d.reloads.with_label_values(&["error"]).get(), 1);
+        assert_eq!(d.feedback_labels.with_label_values(&["wrong"]).get(), 1, "a predicted label is feedback");
+        assert_eq!(d.feedback_labels.with_label_values(&["correct"]).get(), 0);
         assert!(d.snapshot_age.get() >= 0.0 && d.snapshot_age.get() < 5.0);
         assert!(d.reload_age.get() >= 0.0 && d.reload_age.get() < 5.0);
-        let st = mon.status();
-        assert_eq!((st.freshness.labels_learned, st.freshness.reloads_failed), (10, 1));
+        assert!(d.feedback_since_last_label.get() < 5.0);
+        let text = metrics.render();
+        assert!(text.contains(r#"sieveline_model_loads_total{result="refused"} 0"#), "{text}");
     }
 
     #[test]

@@ -62,6 +62,13 @@ impl RouteScratch {
     }
 }
 
+impl RouteScratch {
+    /// The analyzed terms of the last record routed.
+    pub fn terms(&self) -> &TermBag {
+        &self.bag
+    }
+}
+
 /// Everything needed to turn an input into an output, built once from settings.
 #[derive(Debug)]
 pub struct Router {
@@ -190,7 +197,7 @@ fn decision_payload(d: &Decision, original: &[u8], codec: CodecKind) -> Vec<u8> 
 pub fn class_label(kind: &OutKind) -> Option<&Arc<str>> {
     match kind {
         OutKind::Decision { class } | OutKind::Review { class } => Some(class),
-        OutKind::DeadLetter { .. } => None,
+        OutKind::DeadLetter { .. } | OutKind::Label => None,
     }
 }
 
