@@ -21,3 +21,4 @@ if [ ${#missing[@]} -gt 0 ]; then
   $sudo_cmd apt-get update -qq >&2
   DEBIAN_FRONTEND=noninteractive $sudo_cmd apt-get install -y -qq "${missing[@]}" >&2
 fi
+bash "$(dirname "$0")/install-monitoring-deps.sh"

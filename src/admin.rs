@@ -1,4 +1,4 @@
-//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON), `/assignment` (owned partitions) and `POST /classify`; a bearer token guards all but metrics and health.
+//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON), `/assignment` (owned partitions), `POST /classify`, and the status page `/` with its data `/status.json`; a bearer token guards all but metrics and health.
 
 use std::sync::Arc;
 
@@ -16,6 +16,7 @@ use crate::io::lines::render_line;
 use crate::io::message::Inbound;
 use crate::metrics::Metrics;
 use crate::runtime::model_view::ModelHandle;
+use crate::runtime::monitor::DriftMonitor;
 use crate::runtime::router::{RouteScratch, Router};
 use crate::runtime::Readiness;
 
@@ -38,15 +39,24 @@ pub struct AdminState {
     pub readiness: Arc<Readiness>,
     /// Required as `Authorization: Bearer <token>` on guarded routes when set.
     pub token: Option<String>,
+    /// Drift and health numbers: refreshed at each scrape, and the status page's data.
+    pub drift: Option<Arc<DriftMonitor>>,
+    /// Serve the status page at `/` and `/status.json` (guarded like `/model`).
+    pub status_page: bool,
 }
 
 /// The routes; guarded ones check the bearer token.
 pub fn routes(state: AdminState) -> HttpRouter {
-    let guarded = HttpRouter::new()
+    let mut guarded = HttpRouter::new()
         .route(PATH_MODEL, get(model_info))
         .route(PATH_CLASSIFY, post(classify))
-        .route(PATH_ASSIGNMENT, get(assignment))
-        .route_layer(middleware::from_fn_with_state(state.clone(), require_token));
+        .route(PATH_ASSIGNMENT, get(assignment));
+    if state.status_page && state.drift.is_some() {
+        guarded = guarded
+            .route("/", get(crate::runtime::status::page))
+            .route("/status.json", get(crate::runtime::status::status_json));
+    }
+    let guarded = guarded.route_layer(middleware::from_fn_with_state(state.clone(), require_token));
     HttpRouter::new()
         .route(PATH_METRICS, get(metrics))
         .route(PATH_HEALTHZ, get(|| async { "ok\n" }))
@@ -81,6 +91,9 @@ fn constant_time_eq(a: &[u8], b: &[u8]) -> bool {
 }
 
 async fn metrics(State(st): State<AdminState>) -> Response {
+    if let Some(d) = &st.drift {
+        d.refresh_gauges();
+    }
     ([(header::CONTENT_TYPE, "text/plain; version=0.0.4; charset=utf-8")], st.metrics.render()).into_response()
 }
 

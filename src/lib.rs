@@ -9,6 +9,7 @@
 //! - [`decide`]: scores → `Decision`, the review policy;
 //! - [`eval`]: metrics, folds, cross-validated tuning, reports;
 //! - [`demo`]: the invented demo scenario's seeded generator (tickets, logs, labels);
+//! - [`drift`]: drift and health statistics — class-mix PSI and Jensen–Shannon divergence, unknown tokens, confidence, feedback accuracy, Page–Hinkley;
 //! - [`io`]: record codecs and file readers (offline and streaming edges);
 //! - [`runtime`]: the service — pipeline, offset watermarks, acks, model view seam, shutdown;
 //! - [`admin`]: the admin HTTP endpoint; [`metrics`]: every metric name in one place;
@@ -21,6 +22,7 @@ pub mod clock;
 pub mod commands;
 pub mod decide;
 pub mod demo;
+pub mod drift;
 pub mod error;
 pub mod eval;
 pub mod features;

@@ -4,7 +4,9 @@
 //! fixed dead-letter reasons, `kind` a fixed set. Record content never becomes
 //! a label.
 
-use prometheus::{Encoder, Histogram, HistogramOpts, IntCounter, IntCounterVec, IntGauge, Opts, Registry, TextEncoder};
+use prometheus::{
+    Encoder, Gauge, GaugeVec, Histogram, HistogramOpts, IntCounter, IntCounterVec, IntGauge, Opts, Registry, TextEncoder,
+};
 
 pub const RECORDS_IN: &str = "sieveline_records_in_total";
 pub const RECORDS_OUT: &str = "sieveline_records_out_total";
@@ -39,6 +41,28 @@ pub const LABEL_PUBLISH_DELAY: &str = "sieveline_label_publish_delay_seconds";
 pub const SNAPSHOTS: &str = "sieveline_snapshots_total";
 pub const LAST_SNAPSHOT: &str = "sieveline_last_snapshot_timestamp_seconds";
 pub const MODEL_LOADS: &str = "sieveline_model_loads_total";
+// Drift and health (docs/drift.md). Ratios are 0..1; the index and divergence are unitless / bits.
+pub const DRIFT_WINDOW_RECORDS: &str = "sieveline_drift_window_records";
+pub const DRIFT_CLASS_MIX_PSI: &str = "sieveline_drift_class_mix_psi";
+pub const DRIFT_CLASS_MIX_JS: &str = "sieveline_drift_class_mix_js_divergence_bits";
+pub const DRIFT_CLASS_SHARE: &str = "sieveline_drift_class_share_ratio";
+pub const DRIFT_UNKNOWN_TOKENS: &str = "sieveline_drift_unknown_token_ratio";
+pub const DRIFT_MOSTLY_UNKNOWN_RECORDS: &str = "sieveline_drift_mostly_unknown_record_ratio";
+pub const DRIFT_CONFIDENCE_MEAN: &str = "sieveline_drift_confidence_mean_ratio";
+pub const DRIFT_REVIEW_RATIO: &str = "sieveline_drift_review_ratio";
+pub const DECISION_CONFIDENCE: &str = "sieveline_decision_confidence_ratio";
+pub const FEEDBACK_LABELS: &str = "sieveline_feedback_labels_total";
+pub const FEEDBACK_ACCURACY: &str = "sieveline_feedback_accuracy_ratio";
+pub const FEEDBACK_CLASS_ACCURACY: &str = "sieveline_feedback_class_accuracy_ratio";
+pub const FEEDBACK_WINDOW_LABELS: &str = "sieveline_feedback_window_labels";
+pub const FEEDBACK_LABEL_DELAY: &str = "sieveline_feedback_label_delay_seconds";
+pub const FEEDBACK_CHANGE_DETECTED: &str = "sieveline_feedback_change_detected";
+pub const FEEDBACK_CHANGES: &str = "sieveline_feedback_changes_detected_total";
+pub const FEEDBACK_PAGE_HINKLEY: &str = "sieveline_feedback_page_hinkley_statistic";
+pub const FEEDBACK_SINCE_LAST_LABEL: &str = "sieveline_feedback_seconds_since_last_label";
+pub const MODEL_SNAPSHOT_AGE: &str = "sieveline_model_snapshot_age_seconds";
+pub const MODEL_RELOAD_AGE: &str = "sieveline_model_reload_age_seconds";
+pub const CONSUMER_LAG: &str = "sieveline_consumer_lag_records";
 
 /// Label of [`RECORDS_DEAD_LETTERED`].
 pub const LABEL_REASON: &str = "reason";
@@ -48,6 +72,8 @@ pub const LABEL_CLASS: &str = "class";
 pub const LABEL_RESULT: &str = "result";
 /// Label of [`REBALANCES`]: `assign` or `revoke`.
 pub const LABEL_KIND: &str = "kind";
+/// Label of [`DRIFT_CLASS_SHARE`]: `window` or `reference`.
+pub const LABEL_MIX: &str = "mix";
 
 /// The service's metrics, registered in their own registry.
 #[derive(Clone)]
@@ -84,6 +110,7 @@ pub struct Metrics {
     pub last_snapshot: IntGauge,
     pub model_loads: IntCounterVec,
     pub rebalances: IntCounterVec,
+    pub drift: DriftMetrics,
 }
 
 impl Metrics {
@@ -161,6 +188,7 @@ impl Metrics {
             last_snapshot: gauge(LAST_SNAPSHOT, "Unix time of the last snapshot written (0: none yet)."),
             model_loads: counter_vec(MODEL_LOADS, "Model files loaded by the learner (start and reload), by result (ok, refused).", LABEL_RESULT),
             rebalances: counter_vec(REBALANCES, "Consumer group rebalance events of this replica, by kind (assign, revoke).", LABEL_KIND),
+            drift: DriftMetrics::register(&registry),
             registry,
         }
     }
@@ -170,6 +198,132 @@ impl Metrics {
         let mut buf = Vec::new();
         TextEncoder::new().encode(&self.registry.gather(), &mut buf).expect("text encoding never fails");
         String::from_utf8(buf).expect("exposition text is UTF-8")
+    }
+}
+
+/// Drift and health metrics (docs/drift.md): gauges the record loop sets when it summarises its
+/// window, feedback metrics the learner's calls update, freshness gauges set at each scrape.
+#[derive(Clone)]
+pub struct DriftMetrics {
+    pub window_records: IntGauge,
+    pub class_mix_psi: Gauge,
+    pub class_mix_js_bits: Gauge,
+    pub class_share: GaugeVec,
+    pub unknown_tokens: Gauge,
+    pub mostly_unknown_records: Gauge,
+    pub confidence_mean: Gauge,
+    pub review_ratio: Gauge,
+    pub decision_confidence: Histogram,
+    pub feedback_labels: IntCounterVec,
+    pub feedback_accuracy: Gauge,
+    pub feedback_class_accuracy: GaugeVec,
+    pub feedback_window_labels: IntGauge,
+    pub feedback_label_delay: Histogram,
+    pub feedback_change_detected: IntGauge,
+    pub feedback_changes: IntCounter,
+    pub feedback_page_hinkley: Gauge,
+    pub feedback_since_last_label: Gauge,
+    pub snapshot_age: Gauge,
+    pub reload_age: Gauge,
+    pub consumer_lag: IntGauge,
+}
+
+impl DriftMetrics {
+    fn register(registry: &Registry) -> DriftMetrics {
+        fn reg<M: prometheus::core::Collector + Clone + 'static>(r: &Registry, m: M) -> M {
+            r.register(Box::new(m.clone())).expect("unique metric");
+            m
+        }
+        let gauge = |name: &str, help: &str| reg(registry, Gauge::with_opts(Opts::new(name, help)).expect("valid gauge"));
+        let igauge = |name: &str, help: &str| reg(registry, IntGauge::with_opts(Opts::new(name, help)).expect("valid gauge"));
+        let counter = |name: &str, help: &str| reg(registry, IntCounter::with_opts(Opts::new(name, help)).expect("valid counter"));
+        let nan = |g: Gauge| {
+            g.set(f64::NAN);
+            g
+        };
+        let m = DriftMetrics {
+            window_records: igauge(DRIFT_WINDOW_RECORDS, "Decided records in the drift window (drift.window_records at most)."),
+            class_mix_psi: nan(gauge(
+                DRIFT_CLASS_MIX_PSI,
+                "Population stability index of the window's predicted-class mix against the reference (NaN until drift.min_records).",
+            )),
+            class_mix_js_bits: nan(gauge(
+                DRIFT_CLASS_MIX_JS,
+                "Jensen-Shannon divergence (bits, 0..1) of the window's predicted-class mix against the reference.",
+            )),
+            class_share: reg(
+                registry,
+                GaugeVec::new(
+                    Opts::new(DRIFT_CLASS_SHARE, "Share of each class in the window's decisions and in the reference."),
+                    &[LABEL_CLASS, LABEL_MIX],
+                )
+                .expect("valid gauge"),
+            ),
+            unknown_tokens: nan(gauge(DRIFT_UNKNOWN_TOKENS, "Share of the window's tokens the model has never counted.")),
+            mostly_unknown_records: nan(gauge(
+                DRIFT_MOSTLY_UNKNOWN_RECORDS,
+                "Share of the window's records with more than half their tokens unknown to the model.",
+            )),
+            confidence_mean: nan(gauge(DRIFT_CONFIDENCE_MEAN, "Mean confidence (posterior of the decided class) over the window.")),
+            review_ratio: nan(gauge(DRIFT_REVIEW_RATIO, "Share of the window's decisions sent to review.")),
+            decision_confidence: reg(
+                registry,
+                Histogram::with_opts(
+                    HistogramOpts::new(DECISION_CONFIDENCE, "Confidence of each decision (posterior of the decided class).")
+                        .buckets((1..=10).map(|i| i as f64 / 10.0).collect()),
+                )
+                .expect("valid histogram"),
+            ),
+            feedback_labels: reg(
+                registry,
+                IntCounterVec::new(
+                    Opts::new(FEEDBACK_LABELS, "Labels compared with the decision made before they arrived, by result (correct, wrong)."),
+                    &[LABEL_RESULT],
+                )
+                .expect("valid counter"),
+            ),
+            feedback_accuracy: nan(gauge(
+                FEEDBACK_ACCURACY,
+                "Prequential accuracy over the last drift.feedback_window_labels labels (decision made before the label).",
+            )),
+            feedback_class_accuracy: reg(
+                registry,
+                GaugeVec::new(
+                    Opts::new(
+                        FEEDBACK_CLASS_ACCURACY,
+                        "Prequential accuracy on the window's labels of each true class with at least drift.feedback_min_class_labels labels.",
+                    ),
+                    &[LABEL_CLASS],
+                )
+                .expect("valid gauge"),
+            ),
+            feedback_window_labels: igauge(FEEDBACK_WINDOW_LABELS, "Labels in the feedback accuracy window."),
+            feedback_label_delay: reg(
+                registry,
+                Histogram::with_opts(
+                    HistogramOpts::new(FEEDBACK_LABEL_DELAY, "From a record's time to the time of its label.")
+                        .buckets(prometheus::exponential_buckets(1.0, 4.0, 10).expect("buckets")),
+                )
+                .expect("valid histogram"),
+            ),
+            feedback_change_detected: igauge(
+                FEEDBACK_CHANGE_DETECTED,
+                "1 while a Page-Hinkley change in the feedback error rate was detected within the last drift.change_hold_labels labels.",
+            ),
+            feedback_changes: counter(FEEDBACK_CHANGES, "Page-Hinkley detections of a rise in the feedback error rate."),
+            feedback_page_hinkley: gauge(FEEDBACK_PAGE_HINKLEY, "The Page-Hinkley statistic on the feedback error stream (alarm above drift.page_hinkley_lambda)."),
+            feedback_since_last_label: gauge(FEEDBACK_SINCE_LAST_LABEL, "Seconds since the last label arrived (since start if none has)."),
+            snapshot_age: gauge(
+                MODEL_SNAPSHOT_AGE,
+                "Seconds since the newest of: the served snapshot's creation time, the last snapshot this process wrote.",
+            ),
+            reload_age: gauge(MODEL_RELOAD_AGE, "Seconds since the served model was loaded from a file (start counts as a load)."),
+            consumer_lag: igauge(CONSUMER_LAG, "Records behind the end of the assigned source partitions, summed (librdkafka statistics)."),
+        };
+        for r in ["correct", "wrong"] {
+            m.feedback_labels.with_label_values(&[r]);
+        }
+        m
     }
 }
 

@@ -47,6 +47,8 @@ pub struct Settings {
     pub admin: AdminSettings,
     pub learning: LearningSettings,
     pub snapshot: SnapshotSettings,
+    pub drift: DriftSettings,
+    pub status_page: StatusPageSettings,
 }
 
 /// Everything that changes which terms a record yields. Its fingerprint goes
@@ -495,6 +497,153 @@ impl Settings {
     }
 }
 
+choice_enum!(
+    /// What the predicted-class mix is compared with (docs/drift.md).
+    DriftReference { Priors => "priors", Baseline => "baseline" }
+);
+
+/// Drift and health statistics of the service (docs/drift.md).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DriftSettings {
+    pub enabled: bool,
+    pub window_records: usize,
+    pub publish_every_records: u64,
+    pub publish_interval_ms: u64,
+    pub reference: DriftReference,
+    pub baseline_records: u64,
+    pub min_records: u64,
+    pub psi_floor: f64,
+    pub feedback_window_labels: usize,
+    pub feedback_min_class_labels: u64,
+    pub page_hinkley_delta: f64,
+    pub page_hinkley_lambda: f64,
+    pub page_hinkley_min_labels: u64,
+    pub change_hold_labels: u64,
+    pub consumer_lag_interval_ms: u64,
+    pub thresholds: DriftThresholds,
+}
+
+/// Thresholds shown beside each indicator on the status page; the same numbers as `deploy/prometheus/alerts.yml`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DriftThresholds {
+    pub psi_moderate: f64,
+    pub psi_major: f64,
+    pub js_divergence_bits: f64,
+    pub oov_token_ratio: f64,
+    pub oov_record_ratio: f64,
+    pub review_ratio: f64,
+    pub feedback_accuracy: f64,
+    pub feedback_min_labels: u64,
+}
+
+/// The status page at `/` of the admin endpoint.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct StatusPageSettings {
+    pub enabled: bool,
+    pub recent_reviews: usize,
+    pub text_chars: usize,
+    pub sample_interval_ms: u64,
+    pub history_points: usize,
+    pub throughput_window_ms: u64,
+    pub refresh_ms: u64,
+}
+
+impl Settings {
+    fn validate_drift(&self) -> Result<(), SettingsError> {
+        let d = &self.drift;
+        if !(10..=10_000_000).contains(&d.window_records) {
+            return Err(invalid("drift.window_records", d.window_records, "10 to 10000000 records"));
+        }
+        if !(1..=10_000_000).contains(&d.publish_every_records) {
+            return Err(invalid("drift.publish_every_records", d.publish_every_records, "1 to 10000000 records"));
+        }
+        if !(10..=3_600_000).contains(&d.publish_interval_ms) {
+            return Err(invalid("drift.publish_interval_ms", d.publish_interval_ms, "10 to 3600000 milliseconds"));
+        }
+        if !(1..=10_000_000).contains(&d.baseline_records) {
+            return Err(invalid("drift.baseline_records", d.baseline_records, "1 to 10000000 records"));
+        }
+        if d.min_records < 1 || d.min_records > d.window_records as u64 {
+            return Err(invalid("drift.min_records", d.min_records, "1 to drift.window_records"));
+        }
+        if !(d.psi_floor > 0.0 && d.psi_floor <= 0.01) {
+            return Err(invalid("drift.psi_floor", d.psi_floor, "a proportion above 0, at most 0.01"));
+        }
+        if !(1..=10_000_000).contains(&d.feedback_window_labels) {
+            return Err(invalid("drift.feedback_window_labels", d.feedback_window_labels, "1 to 10000000 labels"));
+        }
+        if d.feedback_min_class_labels < 1 {
+            return Err(invalid("drift.feedback_min_class_labels", d.feedback_min_class_labels, "at least 1"));
+        }
+        if !(d.page_hinkley_delta.is_finite() && (0.0..1.0).contains(&d.page_hinkley_delta)) {
+            return Err(invalid("drift.page_hinkley_delta", d.page_hinkley_delta, "a number from 0 to below 1"));
+        }
+        if !(d.page_hinkley_lambda.is_finite() && d.page_hinkley_lambda > 0.0) {
+            return Err(invalid("drift.page_hinkley_lambda", d.page_hinkley_lambda, "a number above 0"));
+        }
+        if d.page_hinkley_min_labels < 1 {
+            return Err(invalid("drift.page_hinkley_min_labels", d.page_hinkley_min_labels, "at least 1"));
+        }
+        if d.consumer_lag_interval_ms != 0 && !(100..=3_600_000).contains(&d.consumer_lag_interval_ms) {
+            return Err(invalid(
+                "drift.consumer_lag_interval_ms",
+                d.consumer_lag_interval_ms,
+                "0 (off) or 100 to 3600000 milliseconds",
+            ));
+        }
+        let t = &d.thresholds;
+        for (key, v) in [
+            ("drift.thresholds.psi_moderate", t.psi_moderate),
+            ("drift.thresholds.psi_major", t.psi_major),
+        ] {
+            if !(v.is_finite() && v > 0.0) {
+                return Err(invalid(key, v, "a number above 0"));
+            }
+        }
+        if t.psi_moderate > t.psi_major {
+            return Err(invalid("drift.thresholds.psi_moderate", t.psi_moderate, "at most drift.thresholds.psi_major"));
+        }
+        for (key, v) in [
+            ("drift.thresholds.js_divergence_bits", t.js_divergence_bits),
+            ("drift.thresholds.oov_token_ratio", t.oov_token_ratio),
+            ("drift.thresholds.oov_record_ratio", t.oov_record_ratio),
+            ("drift.thresholds.review_ratio", t.review_ratio),
+            ("drift.thresholds.feedback_accuracy", t.feedback_accuracy),
+        ] {
+            if !(0.0..=1.0).contains(&v) {
+                return Err(invalid(key, v, "a number from 0 to 1"));
+            }
+        }
+        let p = &self.status_page;
+        if p.recent_reviews > 1000 {
+            return Err(invalid("status_page.recent_reviews", p.recent_reviews, "0 to 1000 records"));
+        }
+        if !(1..=10_000).contains(&p.text_chars) {
+            return Err(invalid("status_page.text_chars", p.text_chars, "1 to 10000 characters"));
+        }
+        if !(100..=3_600_000).contains(&p.sample_interval_ms) {
+            return Err(invalid("status_page.sample_interval_ms", p.sample_interval_ms, "100 to 3600000 milliseconds"));
+        }
+        if !(2..=100_000).contains(&p.history_points) {
+            return Err(invalid("status_page.history_points", p.history_points, "2 to 100000 points"));
+        }
+        if p.throughput_window_ms < p.sample_interval_ms || p.throughput_window_ms > 3_600_000 {
+            return Err(invalid(
+                "status_page.throughput_window_ms",
+                p.throughput_window_ms,
+                "status_page.sample_interval_ms to 3600000 milliseconds",
+            ));
+        }
+        if !(100..=600_000).contains(&p.refresh_ms) {
+            return Err(invalid("status_page.refresh_ms", p.refresh_ms, "100 to 600000 milliseconds"));
+        }
+        Ok(())
+    }
+}
+
 impl Settings {
     /// Defaults, then `file` (if any), then the process environment.
     pub fn load(file: Option<&Path>) -> Result<Settings, SettingsError> {
@@ -577,6 +726,7 @@ impl Settings {
     pub fn validate(&self) -> Result<(), SettingsError> {
         self.validate_rules()?;
         self.validate_learning()?;
+        self.validate_drift()?;
         let a = &self.analyzer;
         if a.min_token_len == 0 || a.min_token_len > a.max_token_len {
             return Err(invalid(

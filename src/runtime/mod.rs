@@ -2,16 +2,19 @@
 
 pub mod ack;
 pub mod assignment;
+pub mod drift_observer;
 pub mod error;
 pub mod label_log;
 pub mod learner;
 pub mod model_view;
+pub mod monitor;
 pub mod pipeline;
 pub mod resolver;
 pub mod router;
 pub mod service;
 pub mod shutdown;
 pub mod startup;
+pub mod status;
 pub mod watermark;
 
 pub use error::ServiceError;

@@ -17,6 +17,7 @@ use crate::metrics::Metrics;
 use crate::runtime::ack::{AckShared, AckTicket};
 use crate::runtime::error::ServiceError;
 use crate::runtime::model_view::ModelHandle;
+use crate::runtime::monitor::{DecisionObserver, DriftMonitor};
 use crate::runtime::resolver::Resolver;
 use crate::runtime::router::{RouteScratch, Router};
 use crate::runtime::watermark::{PartitionTrack, Tracker};
@@ -35,6 +36,8 @@ pub struct Pipeline {
     pub limit: usize,
     /// Where immediate send failures go (the Kafka sink's retry channel).
     pub retry: Option<mpsc::UnboundedSender<Failed>>,
+    /// Drift bookkeeping; the record loop owns an observer made from it (none when `drift.enabled` is off).
+    pub drift: Option<Arc<DriftMonitor>>,
     /// Remembers scored records and resolves id-only labels (learning with a raw label topic).
     pub resolver: Option<Arc<Resolver>>,
 }
@@ -71,14 +74,18 @@ impl Pipeline {
         track: &Arc<PartitionTrack>,
         rec: &Inbound<'_>,
         scratch: &mut RouteScratch,
+        observer: &mut Option<DecisionObserver>,
     ) -> Result<(), ServiceError> {
         let m = self.metrics();
         m.records_in.inc();
         let started = Instant::now();
         let view = self.model.current();
         let (out, decision) = self.router.route(&view, rec, scratch);
-        drop(view);
         m.scoring_latency.observe(started.elapsed().as_secs_f64());
+        if let (Some(o), Some(d)) = (observer.as_mut(), &decision) {
+            o.observe(&view, d, scratch, started);
+        }
+        drop(view);
         if let (Some(r), Some(d)) = (&self.resolver, &decision) {
             if let (Some(id), Some(class)) = (&d.id, crate::runtime::router::class_label(&out.kind)) {
                 r.remember(id, scratch.terms(), class.clone(), rec.partition);
@@ -116,9 +123,21 @@ impl Pipeline {
         }
     }
 
+    fn observer(&self) -> Option<DecisionObserver> {
+        self.drift.as_ref().and_then(|d| d.observer())
+    }
+
+    /// The last records' drift counters go out when the loop ends.
+    fn publish_drift(&self, observer: &mut Option<DecisionObserver>) {
+        if let Some(o) = observer {
+            o.publish(&self.model.current(), Instant::now());
+        }
+    }
+
     /// Consume until shutdown.
     pub async fn run_kafka(&self, consumer: &SourceConsumer, shutdown: &CancellationToken) -> Result<(), ServiceError> {
         let mut scratch = RouteScratch::default();
+        let mut observer = self.observer();
         // Partition handles by partition number, re-fetched after a revoke closes them.
         let mut cache: Vec<Option<Arc<PartitionTrack>>> = Vec::new();
         loop {
@@ -154,9 +173,10 @@ impl Pipeline {
             };
             match &self.resolver {
                 Some(r) if r.raw_topic == rec.topic => self.process_label(&track, &rec, r).await?,
-                _ => self.process(&track, &rec, &mut scratch).await?,
+                _ => self.process(&track, &rec, &mut scratch, &mut observer).await?,
             }
         }
+        self.publish_drift(&mut observer);
         Ok(())
     }
 
@@ -181,6 +201,7 @@ impl Pipeline {
         let name = src.name.clone();
         let track = self.tracker.get(&name, 0);
         let mut scratch = RouteScratch::default();
+        let mut observer = self.observer();
         let mut buf = Vec::new();
         let mut offset = -1i64;
         loop {
@@ -208,8 +229,9 @@ impl Pipeline {
                 headers: Vec::new(),
                 timestamp_ms: Some(crate::runtime::now_ms()),
             };
-            self.process(&track, &rec, &mut scratch).await?;
+            self.process(&track, &rec, &mut scratch, &mut observer).await?;
         }
+        self.publish_drift(&mut observer);
         Ok(())
     }
 

@@ -7,6 +7,7 @@ use crate::decide::{decide_by_model, DecideScratch, Decision, ReviewPolicy};
 use crate::io::codec::{Codec, Decoded};
 use crate::io::headers as h;
 use crate::io::message::{Inbound, OutKind, Outgoing};
+use crate::model::{ScoreScratch, Scored};
 use crate::runtime::model_view::ModelView;
 use crate::settings::{CodecKind, Settings};
 use crate::text::{Analyzer, AnalyzerScratch, TermBag};
@@ -33,6 +34,25 @@ pub struct RouteScratch {
     analyzer: AnalyzerScratch,
     bag: TermBag,
     decide: DecideScratch,
+    /// The model's score of the last routed record, when the model scored it (read by the drift observer).
+    scored: Option<Scored>,
+}
+
+impl RouteScratch {
+    /// The last routed record's analyzed terms.
+    pub fn bag(&self) -> &TermBag {
+        &self.bag
+    }
+
+    /// The last routed record's text fields and weights, as decoded.
+    pub fn fields(&self) -> &[(String, f64)] {
+        &self.decoded.fields
+    }
+
+    /// The model's score of the last routed record and the scratch it left (rows found), if the model scored it.
+    pub fn model_score(&self) -> Option<(&Scored, &ScoreScratch)> {
+        self.scored.as_ref().map(|s| (s, &self.decide.score))
+    }
 }
 
 impl RouteScratch {
@@ -77,6 +97,7 @@ impl Router {
 
     /// Route one record against one view. The returned decision is `None` for dead letters.
     pub fn route(&self, view: &ModelView, rec: &Inbound<'_>, s: &mut RouteScratch) -> (Outgoing, Option<Decision>) {
+        s.scored = None;
         if let Err(e) = self.codec.decode(rec.payload, &mut s.decoded) {
             return (self.dead_letter(rec, e.reason(), None), None);
         }
@@ -94,6 +115,7 @@ impl Router {
             self.explain_terms,
             &mut s.decide,
         );
+        s.scored = Some(scored);
         let class = view.classes[scored.best].clone();
         let payload = decision_payload(&decision, rec.payload.unwrap_or_default(), self.codec.kind());
         let mut headers = Vec::with_capacity(7);

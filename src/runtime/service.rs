@@ -28,6 +28,7 @@ use crate::runtime::ack::AckTicket;
 use crate::runtime::label_log::LabelLog;
 use crate::runtime::learner::{self, LearnObserver, LearnerConfig, LearnerHandle, LearnerParts};
 use crate::runtime::model_view::ModelHandle;
+use crate::runtime::monitor::DriftMonitor;
 use crate::runtime::resolver::Resolver;
 use crate::runtime::startup;
 use crate::runtime::pipeline::{retry_loop, Pipeline};
@@ -74,6 +75,7 @@ pub struct Service {
     router: Arc<Router>,
     readiness: Arc<Readiness>,
     latency_hook: Option<LatencyHook>,
+    drift: Arc<DriftMonitor>,
     /// A label log given by the embedding program (the demo), used instead of the settings' one.
     label_log: std::sync::Mutex<Option<Box<dyn LabelLog>>>,
     observer: Option<Arc<dyn LearnObserver>>,
@@ -109,10 +111,13 @@ impl Service {
         }
         let readiness = Arc::new(Readiness::default());
         readiness.model_loaded.store(true, Ordering::SeqCst);
+        let model = ModelHandle::new(view);
+        let drift = Arc::new(DriftMonitor::new(&settings.drift, &settings.status_page, metrics.clone(), model.clone()));
         Ok(Service {
             settings,
             metrics,
-            model: ModelHandle::new(view),
+            model,
+            drift,
             router: Arc::new(router),
             readiness,
             latency_hook: None,
@@ -164,6 +169,13 @@ impl Service {
         self.model.clone()
     }
 
+    /// Drift and health monitoring (docs/drift.md). The learner reports here through its
+    /// `LearnObserver` interface (each label compared with the decision made before it was
+    /// learned, snapshots, reloads); other callers use `observe_feedback` and the like directly.
+    pub fn drift(&self) -> Arc<DriftMonitor> {
+        self.drift.clone()
+    }
+
     pub fn readiness(&self) -> Arc<Readiness> {
         self.readiness.clone()
     }
@@ -206,9 +218,24 @@ impl Service {
                 router: self.router.clone(),
                 readiness: self.readiness.clone(),
                 token: (!s.admin.token.is_empty()).then(|| s.admin.token.clone()),
+                drift: Some(self.drift.clone()),
+                status_page: s.status_page.enabled,
             };
             tasks.spawn(admin::serve(listener, state, stop_aux.clone()));
         }
+
+        // The status page's history: one sample per interval, whatever the record rate.
+        let (drift, stop, every) =
+            (self.drift.clone(), stop_aux.clone(), Duration::from_millis(s.status_page.sample_interval_ms));
+        tasks.spawn(async move {
+            let mut tick = tokio::time::interval(every);
+            loop {
+                tokio::select! {
+                    _ = stop.cancelled() => return,
+                    _ = tick.tick() => drift.sample(),
+                }
+            }
+        });
 
         let (sink, retry) = self.build_sink().await?;
         let sink = Arc::new(sink);
@@ -241,6 +268,7 @@ impl Service {
             shared: shared.clone(),
             limit: s.delivery.max_in_flight_per_partition,
             retry: retry.clone(),
+            drift: Some(self.drift.clone()),
             resolver: resolver.clone(),
         };
 
@@ -382,7 +410,11 @@ impl Service {
             log,
             models: self.model.clone(),
             metrics: self.metrics.clone(),
-            observer: self.observer.clone(),
+            // The drift monitor takes each label's test-then-train comparison (docs/drift.md).
+            observer: Some(match &self.observer {
+                Some(o) => Arc::new(crate::runtime::monitor::BothObservers(self.drift.clone(), o.clone())) as Arc<dyn LearnObserver>,
+                None => self.drift.clone() as Arc<dyn LearnObserver>,
+            }),
             dead_letters: Some(dead_tx),
         };
         let handle = Arc::new(

@@ -1,6 +1,7 @@
 //! Shared helpers of the service integration tests: the broker address (required), topics, producing and collecting records, a trained test model, the service as a real process, the admin endpoint and the reference metrics parser.
 #![allow(dead_code)]
 
+pub mod cdp;
 pub mod data;
 pub mod kafka;
 pub mod process;

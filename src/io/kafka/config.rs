@@ -23,6 +23,10 @@ pub fn consumer_config(s: &Settings) -> ClientConfig {
     c.set("enable.auto.commit", "true");
     c.set("auto.commit.interval.ms", s.delivery.commit_interval_ms.to_string());
     c.set("enable.partition.eof", "false");
+    if s.drift.consumer_lag_interval_ms > 0 {
+        // Statistics carry the consumer lag (sieveline_consumer_lag_records).
+        c.set("statistics.interval.ms", s.drift.consumer_lag_interval_ms.to_string());
+    }
     c
 }
 

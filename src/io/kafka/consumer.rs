@@ -50,7 +50,14 @@ pub struct SourceContext {
     pub assignment: Arc<Assignment>,
 }
 
-impl ClientContext for SourceContext {}
+impl ClientContext for SourceContext {
+    /// librdkafka's statistics (every `drift.consumer_lag_interval_ms`): the consumer lag gauge.
+    fn stats_raw(&self, statistics: &[u8]) {
+        if let Some(lag) = crate::io::kafka::lag::consumer_lag(statistics) {
+            self.metrics.drift.consumer_lag.set(lag);
+        }
+    }
+}
 
 impl ConsumerContext for SourceContext {
     fn pre_rebalance(&self, consumer: &BaseConsumer<Self>, rebalance: &Rebalance<'_>) {

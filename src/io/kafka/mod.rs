@@ -4,5 +4,6 @@ pub mod check;
 pub mod config;
 pub mod consumer;
 pub mod label_log;
+pub mod lag;
 pub mod producer;
 pub mod topics;
