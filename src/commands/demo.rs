@@ -23,7 +23,7 @@ use crate::model::{Model, NbParams};
 use crate::rules::{self, BlendScratch, Decider, FieldText};
 use crate::runtime::label_log::ChannelLabelLog;
 use crate::runtime::Service;
-use crate::settings::{BlendMode, Settings};
+use crate::settings::{BlendMode, DriftThresholds, Settings};
 use crate::text::Analyzer;
 
 const TICKETS_CONFIG: &str = include_str!("../../demo-stream/config-tickets.toml");
@@ -110,7 +110,7 @@ struct LiveState {
     recent: VecDeque<(bool, bool)>,
     seen: Vec<Seen>,
     labels: usize,
-    last_psi: f64,
+    last: Option<DriftSample>,
 }
 
 /// One stream ready to run.
@@ -240,8 +240,8 @@ impl StreamRun {
             }
             live.state.lock().expect("live").labels = given;
             if i % SAMPLE_EVERY == 0 {
-                let s = drift_sample(&metrics, i);
-                live.state.lock().expect("live").last_psi = s.psi;
+                let s = drift_sample(&metrics, &settings.drift.thresholds, i);
+                live.state.lock().expect("live").last = Some(s.clone());
                 samples.push(s);
             }
         }
@@ -274,9 +274,17 @@ impl StreamRun {
     }
 }
 
-/// Reads the drift indicators the service exports.
-fn drift_sample(_m: &Metrics, index: usize) -> DriftSample {
-    DriftSample { index, psi: 0.0, oov_records: 0.0, flagged: false }
+/// Reads the drift indicators the service exports, and whether any of them is
+/// past its alert threshold (the same thresholds as deploy/prometheus/alerts.yml).
+fn drift_sample(m: &Metrics, t: &DriftThresholds, index: usize) -> DriftSample {
+    let d = &m.drift;
+    let or0 = |x: f64| if x.is_finite() { x } else { 0.0 };
+    let psi = or0(d.class_mix_psi.get());
+    let oov_records = or0(d.mostly_unknown_records.get());
+    let oov_tokens = or0(d.unknown_tokens.get());
+    let change = d.feedback_change_detected.get() == 1;
+    let flagged = psi > t.psi_moderate || oov_tokens > t.oov_token_ratio || oov_records > t.oov_record_ratio || change;
+    DriftSample { index, psi, oov_records, oov_tokens, feedback_accuracy: or0(d.feedback_accuracy.get()), change, flagged }
 }
 
 /// The sink's writer: every output line goes to the decisions file and is read
@@ -346,8 +354,9 @@ async fn progress_lines(lives: Vec<Arc<Live>>) {
                 let n = st.recent.len().max(1) as f64;
                 let acc = st.recent.iter().filter(|r| r.0).count() as f64 / n;
                 let rev = st.recent.iter().filter(|r| r.1).count() as f64 / n;
+                let (psi, oov, flag) = st.last.as_ref().map_or((0.0, 0.0, false), |s| (s.psi, s.oov_tokens, s.flagged));
                 format!(
-                    "{} {}/{} phase {} acc {:.2} review {:.0}% labels {} psi {:.2}",
+                    "{} {}/{} phase {} acc {:.2} review {:.0}% labels {} psi {:.2} unknown {:.1}%{}",
                     l.name,
                     l.decided.load(Ordering::Relaxed),
                     l.total,
@@ -355,7 +364,9 @@ async fn progress_lines(lives: Vec<Arc<Live>>) {
                     acc,
                     rev * 100.0,
                     st.labels,
-                    st.last_psi
+                    psi,
+                    oov * 100.0,
+                    if flag { " DRIFT" } else { "" }
                 )
             })
             .collect();

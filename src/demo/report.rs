@@ -88,18 +88,28 @@ pub struct DriftSample {
     pub psi: f64,
     /// Share of records with more than half their terms unknown to the model.
     pub oov_records: f64,
+    /// Share of terms unknown to the model.
+    pub oov_tokens: f64,
+    /// Prequential accuracy over the recent labels (NaN-free: 0 before any).
+    pub feedback_accuracy: f64,
+    /// The change detector on the feedback error stream is raised.
+    pub change: bool,
     /// True when any drift alert condition holds (PSI, OOV surge, change detected).
     pub flagged: bool,
 }
 
-/// Records from each phase change (phases 2 and 3) to the first flagged
-/// sample at or after it; `None` if never flagged in that phase.
+/// Records from each phase change (phases 2 and 3) to the first sample in
+/// that phase where the indicator goes up (flagged, the sample before not);
+/// `None` if it never goes up in that phase.
 pub fn flag_delays(samples: &[DriftSample], bounds: &Boundaries) -> Vec<(u8, Option<usize>)> {
     [(2u8, bounds.phase2_start, bounds.phase3_start), (3, bounds.phase3_start, bounds.records)]
         .into_iter()
         .map(|(phase, start, end)| {
-            let first = samples.iter().find(|s| s.index >= start && s.index < end && s.flagged);
-            (phase, first.map(|s| s.index - start))
+            let raised = samples
+                .windows(2)
+                .find(|w| w[1].index >= start && w[1].index < end && w[1].flagged && !w[0].flagged)
+                .map(|w| w[1].index - start);
+            (phase, raised)
         })
         .collect()
 }
@@ -140,8 +150,11 @@ mod tests {
     #[test]
     fn flag_delay_is_counted_from_each_phase_start() {
         let bounds = Boundaries::new(100, 0.4, 0.7);
-        let s = |index, flagged| DriftSample { index, psi: 0.0, oov_records: 0.0, flagged };
+        let s = |index, flagged| DriftSample { index, psi: 0.0, oov_records: 0.0, oov_tokens: 0.0, feedback_accuracy: 0.0, change: false, flagged };
         let samples = vec![s(10, true), s(40, false), s(55, true), s(70, false), s(80, false)];
         assert_eq!(flag_delays(&samples, &bounds), vec![(2, Some(15)), (3, None)]);
+        // Already up before the change: only a new rise counts.
+        let samples = vec![s(30, true), s(40, true), s(50, true), s(60, false), s(65, true)];
+        assert_eq!(flag_delays(&samples, &bounds), vec![(2, Some(25)), (3, None)]);
     }
 }
