@@ -44,6 +44,8 @@ pub enum Command {
     /// Run the whole job in process on the invented demo scenario: rules on day one, reviewers'
     /// labels teaching the model, drift, a live status page; no broker needed.
     Demo(DemoArgs),
+    /// Produce a JSON-lines file to a Kafka topic, keyed by a field (murmur2, like Java clients).
+    Feed(FeedArgs),
     /// Measure replicas of `run` in one consumer group: records/s for 1, 2, 3 … replicas, and coverage time after a replica's loss.
     BenchScale(BenchScaleArgs),
     /// Check a settings file before a deploy: settings, rules and model files; with --connect, the brokers, topics and consumer group.
@@ -309,6 +311,25 @@ pub struct GenerateArgs {
     /// Also write labelled training files, one per phase (record fields plus `class`).
     #[arg(long)]
     pub labelled: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct FeedArgs {
+    /// JSON-lines file, one record a line.
+    #[arg(long, short)]
+    pub file: PathBuf,
+    /// Topic to produce to (kafka.bootstrap_servers and kafka properties from settings).
+    #[arg(long, short)]
+    pub topic: String,
+    /// Field whose value keys each record (e.g. id).
+    #[arg(long)]
+    pub key_field: Option<String>,
+    /// Field naming the partition to produce to (id-only labels of records not keyed by id).
+    #[arg(long)]
+    pub partition_field: Option<String>,
+    /// Records per second; 0 for as fast as possible.
+    #[arg(long, default_value_t = 0.0)]
+    pub rate: f64,
 }
 
 #[derive(Debug, Args)]

@@ -41,6 +41,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::BenchStream(a) => commands::bench_stream::run(settings, a),
         Command::Generate(a) => commands::generate::run(a),
         Command::Demo(a) => commands::demo::run(a),
+        Command::Feed(a) => commands::feed::run(settings, a),
         Command::CheckConfig(a) => commands::check_config::run(settings, a),
         Command::BenchScale(a) => commands::bench_scale::run(settings, a),
     }

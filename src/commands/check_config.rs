@@ -185,7 +185,7 @@ fn print_text(
     }
     if let Some(c) = cluster {
         println!("kafka: {} reachable, {} broker(s) in the cluster", c.bootstrap, c.brokers);
-        println!("  {:<40} {:<14} {:<6} {:>10}  status", "topic", "role", "access", "partitions");
+        println!("  {:<40} {:<26} {:<6} {:>10}  status", "topic", "role", "access", "partitions");
         for t in &c.topics {
             let role = match &t.class {
                 Some(class) => format!("class {class}"),
@@ -199,7 +199,7 @@ fn print_text(
                 TopicState::NotAuthorized => ("-".into(), "NOT AUTHORIZED".into()),
                 TopicState::Error { code } => ("-".into(), format!("ERROR {code}")),
             };
-            println!("  {:<40} {:<14} {:<6} {:>10}  {}", t.name, role, t.access, parts, status);
+            println!("  {:<40} {:<26} {:<6} {:>10}  {}", t.name, role, t.access, parts, status);
         }
         let source_parts: usize = c
             .topics

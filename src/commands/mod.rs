@@ -5,6 +5,7 @@ pub mod bench_stream;
 pub mod check_config;
 pub mod classify;
 pub mod demo;
+pub mod feed;
 pub mod eval;
 pub mod explain;
 pub mod generate;
