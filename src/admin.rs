@@ -1,9 +1,9 @@
-//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON) and `POST /classify`; a bearer token guards all but metrics and health.
+//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` and `/rules` (what is served, JSON), `POST /classify` and `POST /reload`; a bearer token guards all but metrics and health.
 
 use std::sync::Arc;
 
 use axum::body::Bytes;
-use axum::extract::{Request, State};
+use axum::extract::{Query, Request, State};
 use axum::http::{header, HeaderMap, StatusCode};
 use axum::middleware::{self, Next};
 use axum::response::{IntoResponse, Response};
@@ -16,7 +16,9 @@ use crate::io::lines::render_line;
 use crate::io::message::Inbound;
 use crate::metrics::Metrics;
 use crate::runtime::model_view::ModelHandle;
+use crate::runtime::reload::{Reloader, Trigger, What};
 use crate::runtime::router::{RouteScratch, Router};
+use crate::runtime::rules_view::RulesHandle;
 use crate::runtime::Readiness;
 
 /// The largest body `POST /classify` reads.
@@ -26,6 +28,9 @@ const MAX_CLASSIFY_BODY: usize = 1 << 20;
 pub struct AdminState {
     pub metrics: Arc<Metrics>,
     pub model: ModelHandle,
+    pub rules: RulesHandle,
+    /// `POST /reload` answers 503 without one.
+    pub reloader: Option<Arc<Reloader>>,
     pub router: Arc<Router>,
     pub readiness: Arc<Readiness>,
     /// Required as `Authorization: Bearer <token>` on guarded routes when set.
@@ -36,7 +41,9 @@ pub struct AdminState {
 pub fn routes(state: AdminState) -> HttpRouter {
     let guarded = HttpRouter::new()
         .route("/model", get(model_info))
+        .route("/rules", get(rules_info))
         .route("/classify", post(classify))
+        .route("/reload", post(reload))
         .route_layer(middleware::from_fn_with_state(state.clone(), require_token));
     HttpRouter::new()
         .route("/metrics", get(metrics))
@@ -92,9 +99,37 @@ async fn model_info(State(st): State<AdminState>) -> Response {
     Json(st.model.current().info()).into_response()
 }
 
+/// The served rules file, or `null` without one.
+async fn rules_info(State(st): State<AdminState>) -> Response {
+    Json(st.rules.current().map(|r| r.info())).into_response()
+}
+
+#[derive(serde::Deserialize)]
+struct ReloadQuery {
+    what: Option<String>,
+}
+
+/// Reload the model and/or the rules now (`?what=model|rules|both`, default
+/// both) and answer what happened: 200 when everything asked for is served,
+/// 422 when a file was refused (the old one keeps serving), 400 for an
+/// unknown `what`.
+async fn reload(State(st): State<AdminState>, Query(q): Query<ReloadQuery>) -> Response {
+    let what = match What::parse(q.what.as_deref()) {
+        Ok(w) => w,
+        Err(e) => return (StatusCode::BAD_REQUEST, Json(serde_json::json!({ "error": e }))).into_response(),
+    };
+    let Some(reloader) = &st.reloader else {
+        return (StatusCode::SERVICE_UNAVAILABLE, "reload is not available\n").into_response();
+    };
+    let report = reloader.reload(what, Trigger::Admin).await;
+    let status = if report.succeeded(what) { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
+    (status, Json(report)).into_response()
+}
+
 /// The body is one record in the source codec; the answer is the output line the service would write.
 async fn classify(State(st): State<AdminState>, body: Bytes) -> Response {
     let view = st.model.current();
+    let rules = st.rules.current();
     let rec = Inbound {
         topic: "admin",
         partition: 0,
@@ -105,7 +140,7 @@ async fn classify(State(st): State<AdminState>, body: Bytes) -> Response {
         timestamp_ms: None,
     };
     let mut scratch = RouteScratch::default();
-    let (out, decision) = st.router.route(&view, &rec, &mut scratch);
+    let (out, decision) = st.router.route(&view, rules.as_deref().map(|r| &r.set), &rec, &mut scratch);
     let status = if decision.is_some() { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
     (status, [(header::CONTENT_TYPE, "application/json")], render_line(&out)).into_response()
 }

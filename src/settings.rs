@@ -45,6 +45,7 @@ pub struct Settings {
     pub dead_letter: DeadLetterSettings,
     pub delivery: DeliverySettings,
     pub admin: AdminSettings,
+    pub reload: ReloadSettings,
 }
 
 /// Everything that changes which terms a record yields. Its fingerprint goes
@@ -310,7 +311,25 @@ pub struct RulesSettings {
     pub assign_boost: f64,
 }
 
+/// Hot reload of the model and rules files in the service.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ReloadSettings {
+    /// Watch the model and rules files and reload on change.
+    pub watch: bool,
+    /// Quiet time after the last change to a file before it is reloaded.
+    pub debounce_ms: u64,
+}
+
 impl Settings {
+    fn validate_reload(&self) -> Result<(), SettingsError> {
+        let d = self.reload.debounce_ms;
+        if !(10..=60_000).contains(&d) {
+            return Err(invalid("reload.debounce_ms", d, "an integer from 10 to 60000 (milliseconds)"));
+        }
+        Ok(())
+    }
+
     fn validate_rules(&self) -> Result<(), SettingsError> {
         let r = &self.rules;
         if r.takeover_labels == 0 || r.takeover_labels > 1_000_000_000 {
@@ -401,6 +420,7 @@ impl Settings {
     /// Check every value once; the error names the key, the value and what is allowed.
     pub fn validate(&self) -> Result<(), SettingsError> {
         self.validate_rules()?;
+        self.validate_reload()?;
         let a = &self.analyzer;
         if a.min_token_len == 0 || a.min_token_len > a.max_token_len {
             return Err(invalid(

@@ -1,12 +1,15 @@
-//! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model view seam, shutdown, and `Service` that wires them from settings.
+//! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model and rules view seams, hot reload (watcher, SIGHUP, admin), shutdown, and `Service` that wires them from settings.
 
 pub mod ack;
 pub mod error;
 pub mod model_view;
 pub mod pipeline;
+pub mod reload;
 pub mod router;
+pub mod rules_view;
 pub mod service;
 pub mod shutdown;
+pub mod watch;
 pub mod watermark;
 
 pub use error::ServiceError;

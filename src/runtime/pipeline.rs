@@ -1,4 +1,4 @@
-//! The record loop: read from the source, wait for room in the partition (backpressure), route against one model view, hand to the sink; plus the retry loop for failed deliveries and the drain at the end.
+//! The record loop: read from the source, wait for room in the partition (backpressure), route against one model view and one rules set, hand to the sink; plus the retry loop for failed deliveries and the drain at the end.
 
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -18,6 +18,7 @@ use crate::runtime::ack::{AckShared, AckTicket};
 use crate::runtime::error::ServiceError;
 use crate::runtime::model_view::ModelHandle;
 use crate::runtime::router::{RouteScratch, Router};
+use crate::runtime::rules_view::RulesHandle;
 use crate::runtime::watermark::{PartitionTrack, Tracker};
 
 /// Wait between sends of a failed delivery.
@@ -27,6 +28,7 @@ const RETRY_BACKOFF: Duration = Duration::from_millis(200);
 pub struct Pipeline {
     pub router: Arc<Router>,
     pub model: ModelHandle,
+    pub rules: RulesHandle,
     pub sink: Arc<Sink>,
     pub tracker: Arc<Tracker>,
     pub shared: Arc<AckShared>,
@@ -72,10 +74,15 @@ impl Pipeline {
         let m = self.metrics();
         m.records_in.inc();
         let started = Instant::now();
+        // One model view and one rules set per record, each read once.
         let view = self.model.current();
-        let (mut out, _) = self.router.route(&view, rec, scratch);
-        drop(view);
+        let rules = self.rules.current();
+        let (mut out, decision) = self.router.route(&view, rules.as_deref().map(|r| &r.set), rec, scratch);
+        drop((view, rules));
         m.scoring_latency.observe(started.elapsed().as_secs_f64());
+        if let Some(d) = &decision {
+            m.count_decided_by(&d.decided_by);
+        }
         if !matches!(out.kind, OutKind::DeadLetter { .. }) && !self.sink.destination_exists(&out.topic).await {
             let detail = format!("topic {} does not exist", out.topic);
             out = self.router.dead_letter(rec, REASON_UNKNOWN_DESTINATION, Some(detail));

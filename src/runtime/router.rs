@@ -1,15 +1,19 @@
-//! One record in, one output out: decode, analyze, score against one model view, and pick the destination (class topic, review topic or dead letters). Pure and synchronous.
+//! One record in, one output out: decode, analyze, decide against one model view and one rules set (the blend seam, `Decider`), and pick the destination (class topic, review topic or dead letters). Pure and synchronous.
 
 use std::borrow::Cow;
 use std::sync::Arc;
 
-use crate::decide::{decide_by_model, DecideScratch, Decision, ReviewPolicy};
+use crate::decide::{BlendScratch, Decider, Decision};
 use crate::io::codec::{Codec, Decoded};
 use crate::io::headers as h;
 use crate::io::message::{Inbound, OutKind, Outgoing};
+use crate::rules::{FieldText, RuleSet};
 use crate::runtime::model_view::ModelView;
 use crate::settings::{CodecKind, Settings};
-use crate::text::{Analyzer, AnalyzerScratch, TermBag};
+use crate::text::Analyzer;
+
+/// Records with up to this many text fields are decided without a heap allocation.
+const INLINE_FIELDS: usize = 8;
 
 /// The destination topic of a class: a template with `{class}` placeholders.
 #[derive(Debug, Clone)]
@@ -33,13 +37,11 @@ impl TopicTemplate {
     }
 }
 
-/// Buffers reused across records by one worker.
+/// Buffers reused across records by one worker; valid across model and rules swaps.
 #[derive(Debug, Default)]
 pub struct RouteScratch {
     decoded: Decoded,
-    analyzer: AnalyzerScratch,
-    bag: TermBag,
-    decide: DecideScratch,
+    blend: BlendScratch,
 }
 
 /// Everything needed to turn an input into an output, built once from settings.
@@ -47,8 +49,7 @@ pub struct RouteScratch {
 pub struct Router {
     codec: Codec,
     analyzer: Analyzer,
-    policy: ReviewPolicy,
-    explain_terms: usize,
+    decider: Decider,
     template: TopicTemplate,
     review_topic: String,
     dead_topic: String,
@@ -59,8 +60,7 @@ impl Router {
         Ok(Router {
             codec: Codec::new(settings.source.codec, &settings.input),
             analyzer: Analyzer::new(&settings.analyzer)?,
-            policy: ReviewPolicy::from_settings(&settings.review),
-            explain_terms: settings.model.explain_terms,
+            decider: Decider::from_settings(settings),
             template: TopicTemplate::new(&settings.routing.topic_template),
             review_topic: settings.routing.review_topic.clone(),
             dead_topic: settings.dead_letter.topic.clone(),
@@ -75,26 +75,45 @@ impl Router {
         &self.review_topic
     }
 
-    /// Route one record against one view. The returned decision is `None` for dead letters.
-    pub fn route(&self, view: &ModelView, rec: &Inbound<'_>, s: &mut RouteScratch) -> (Outgoing, Option<Decision>) {
-        if let Err(e) = self.codec.decode(rec.payload, &mut s.decoded) {
+    /// Route one record against one model view and one rules set (`None`: no
+    /// rules). The returned decision is `None` for dead letters.
+    pub fn route(
+        &self,
+        view: &ModelView,
+        rules: Option<&RuleSet>,
+        rec: &Inbound<'_>,
+        s: &mut RouteScratch,
+    ) -> (Outgoing, Option<Decision>) {
+        let RouteScratch { decoded, blend } = s;
+        if let Err(e) = self.codec.decode(rec.payload, decoded) {
             return (self.dead_letter(rec, e.reason(), None), None);
         }
-        self.analyzer.analyze_fields(
-            s.decoded.fields.iter().map(|(t, w)| (t.as_str(), *w)),
-            &mut s.analyzer,
-            &mut s.bag,
-        );
-        let (decision, scored) = decide_by_model(
-            &view.model,
+        let texts = decoded.fields.iter().zip(&decoded.slots).map(|((t, w), &f)| FieldText { field: f, text: t, weight: *w });
+        let mut inline = [FieldText { field: 0, text: "", weight: 0.0 }; INLINE_FIELDS];
+        let spilled: Vec<FieldText<'_>>;
+        let fields: &[FieldText<'_>] = if decoded.fields.len() <= INLINE_FIELDS {
+            let n = inline.iter_mut().zip(texts).map(|(slot, f)| *slot = f).count();
+            &inline[..n]
+        } else {
+            spilled = texts.collect();
+            &spilled
+        };
+        let decision = self.decider.decide(
+            &self.analyzer,
+            rules,
+            Some(&view.model),
             &view.meta.model_version,
-            s.decoded.id.take(),
-            &s.bag,
-            &self.policy,
-            self.explain_terms,
-            &mut s.decide,
+            decoded.id.take(),
+            fields,
+            blend,
         );
-        let class = view.classes[scored.best].clone();
+        // Model classes are shared; a class only a rule names (or none) is allocated.
+        let class = view
+            .classes
+            .iter()
+            .find(|c| ***c == *decision.class)
+            .cloned()
+            .unwrap_or_else(|| Arc::from(decision.class.as_str()));
         let payload = decision_payload(&decision, rec.payload.unwrap_or_default(), self.codec.kind());
         let mut headers = Vec::with_capacity(7);
         headers.push((Cow::Borrowed(h::CLASS), class.as_bytes().to_vec()));

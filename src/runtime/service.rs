@@ -1,4 +1,4 @@
-//! `Service`: built from `Settings` (model loaded and validated first), run until the input ends or the shutdown token fires; then drain, flush, commit and stop every task it started.
+//! `Service`: built from `Settings` (model and rules loaded and validated first), run until the input ends or the shutdown token fires; then drain, flush, commit and stop every task it started (the reload coordinator among them).
 
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -23,7 +23,9 @@ use crate::runtime::ack::{AckShared, LatencyHook};
 use crate::runtime::error::ServiceError;
 use crate::runtime::model_view::{ModelHandle, ModelView};
 use crate::runtime::pipeline::{retry_loop, Pipeline};
+use crate::runtime::reload::{self, ModelReloader, PublishDirectly, Reloader};
 use crate::runtime::router::Router;
+use crate::runtime::rules_view::{RulesHandle, RulesView};
 use crate::runtime::watermark::{NoOffsets, OffsetSink, Tracker};
 use crate::settings::{Settings, SinkKind, SourceKind};
 
@@ -61,13 +63,16 @@ pub struct Service {
     settings: Settings,
     metrics: Arc<Metrics>,
     model: ModelHandle,
+    rules: RulesHandle,
+    model_reloader: Option<Arc<dyn ModelReloader>>,
     router: Arc<Router>,
     readiness: Arc<Readiness>,
     latency_hook: Option<LatencyHook>,
 }
 
 impl Service {
-    /// Load the model named by `service.model` and build the router; nothing is connected yet.
+    /// Load the model named by `service.model` and the rules named by
+    /// `rules.path` (if any), and build the router; nothing is connected yet.
     pub fn new(settings: Settings) -> Result<Service, ServiceError> {
         if settings.service.model.is_empty() {
             return Err(ServiceError::NoModel);
@@ -75,7 +80,12 @@ impl Service {
         let view = ModelView::load(&PathBuf::from(&settings.service.model), &settings.analyzer)
             .map_err(ServiceError::Model)?;
         let router = Router::new(&settings).map_err(|e| ServiceError::Analyzer(e.to_string()))?;
+        let rules = match settings.rules.path.as_str() {
+            "" => None,
+            path => Some(RulesView::load(&settings, &PathBuf::from(path)).map_err(ServiceError::Rules)?),
+        };
         let metrics = Arc::new(Metrics::new());
+        metrics.rules_published(rules.iter().flat_map(|r| r.set.rules().iter().map(|x| x.id.as_str())));
         metrics.model_classes.set(view.classes.len() as i64);
         metrics.in_flight_limit.set(settings.delivery.max_in_flight_per_partition as i64);
         for r in crate::io::headers::REASONS {
@@ -87,6 +97,8 @@ impl Service {
             settings,
             metrics,
             model: ModelHandle::new(view),
+            rules: RulesHandle::new(rules),
+            model_reloader: None,
             router: Arc::new(router),
             readiness,
             latency_hook: None,
@@ -100,6 +112,17 @@ impl Service {
     /// The seam where a reloader or learner publishes new model views.
     pub fn model(&self) -> ModelHandle {
         self.model.clone()
+    }
+
+    /// The seam where a reload publishes new rules.
+    pub fn rules(&self) -> RulesHandle {
+        self.rules.clone()
+    }
+
+    /// Replace how model reloads load and publish a file (the online learner
+    /// installs itself here). Without one, a reload publishes the file as is.
+    pub fn set_model_reloader(&mut self, r: Arc<dyn ModelReloader>) {
+        self.model_reloader = Some(r);
     }
 
     pub fn readiness(&self) -> Arc<Readiness> {
@@ -129,6 +152,7 @@ impl Service {
         shutdown: CancellationToken,
     ) -> Result<RunReport, ServiceError> {
         let s = &self.settings;
+        let reloader = self.start_reload(tasks, stop_aux)?;
         if s.admin.enabled {
             let listener = TcpListener::bind(&s.admin.bind)
                 .await
@@ -138,6 +162,8 @@ impl Service {
             let state = AdminState {
                 metrics: self.metrics.clone(),
                 model: self.model.clone(),
+                rules: self.rules.clone(),
+                reloader: Some(reloader),
                 router: self.router.clone(),
                 readiness: self.readiness.clone(),
                 token: (!s.admin.token.is_empty()).then(|| s.admin.token.clone()),
@@ -163,6 +189,7 @@ impl Service {
         let make_pipeline = |tracker: Arc<Tracker>| Pipeline {
             router: self.router.clone(),
             model: self.model.clone(),
+            rules: self.rules.clone(),
             sink: sink.clone(),
             tracker,
             shared: shared.clone(),
@@ -237,6 +264,38 @@ impl Service {
                 Ok(RunReport { records_in: self.metrics.records_in.get(), drained })
             }
         }
+    }
+
+    /// The reloader shared by every trigger, and its coordinator task (SIGHUP,
+    /// and the file watcher when `reload.watch` is on).
+    fn start_reload(&self, tasks: &TaskTracker, stop: &CancellationToken) -> Result<Arc<Reloader>, ServiceError> {
+        let s = &self.settings;
+        let model_reloader = self.model_reloader.clone().unwrap_or_else(|| {
+            Arc::new(PublishDirectly { model: self.model.clone(), analyzer: s.analyzer.clone() })
+        });
+        let reloader = Arc::new(Reloader::new(
+            Arc::new(s.clone()),
+            self.model.clone(),
+            self.rules.clone(),
+            model_reloader,
+            self.metrics.clone(),
+        ));
+        let hangup = reload::hangup_signal().map_err(ServiceError::Hangup)?;
+        let watch = if s.reload.watch {
+            let files = reloader.files();
+            let files: Vec<_> = files.iter().map(|(t, p)| (*t, p.as_path())).collect();
+            Some(crate::runtime::watch::watch(&files)?)
+        } else {
+            None
+        };
+        let (r, stop) = (reloader.clone(), stop.clone());
+        let debounce = Duration::from_millis(s.reload.debounce_ms);
+        tasks.spawn(async move {
+            let flags = watch.as_ref().map(|w| w.flags.clone());
+            reload::coordinate(r, hangup, flags, debounce, stop).await;
+            drop(watch);
+        });
+        Ok(reloader)
     }
 
     /// Drain in-flight records within the limit, then flush the sink.
