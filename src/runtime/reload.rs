@@ -104,6 +104,16 @@ pub enum Trigger {
     Admin,
 }
 
+impl std::fmt::Display for Trigger {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            Trigger::Watch => "file change",
+            Trigger::Signal => "SIGHUP",
+            Trigger::Admin => "POST /reload",
+        })
+    }
+}
+
 /// How a reload of one target went.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "snake_case")]
@@ -199,7 +209,7 @@ impl Reloader {
                 self.metrics.reloaded(Target::Model.name(), true);
                 self.metrics.model_classes.set(info.classes.len() as i64);
                 tracing::info!(
-                    "model reloaded ({trigger:?}) from {}: version {}, checksum {}",
+                    "model reloaded ({trigger}) from {}: version {}, checksum {}",
                     path.display(),
                     info.model_version,
                     info.checksum
@@ -209,7 +219,7 @@ impl Reloader {
             Err(e) => {
                 self.metrics.reloaded(Target::Model.name(), false);
                 let kept = self.model.current().info();
-                tracing::warn!("model reload ({trigger:?}) refused, version {} keeps serving: {e}", kept.model_version);
+                tracing::warn!("model reload ({trigger}) refused, version {} keeps serving: {e}", kept.model_version);
                 Outcome { result: Status::Refused, reason: Some(e.to_string()), serving_model: Some(kept), serving_rules: None }
             }
         }
@@ -232,7 +242,7 @@ impl Reloader {
                 self.rules.publish(view);
                 self.metrics.reloaded(Target::Rules.name(), true);
                 tracing::info!(
-                    "rules reloaded ({trigger:?}) from {}: {} rules, fingerprint {}",
+                    "rules reloaded ({trigger}) from {}: {} rules, fingerprint {}",
                     info.source,
                     info.rules,
                     info.fingerprint
@@ -243,7 +253,7 @@ impl Reloader {
                 self.metrics.reloaded(Target::Rules.name(), false);
                 let kept = self.rules.current().map(|r| r.info());
                 let which = kept.as_ref().map_or("no rules".to_string(), |k| format!("rules {}", k.fingerprint));
-                tracing::warn!("rules reload ({trigger:?}) refused, {which} keep serving: {e}");
+                tracing::warn!("rules reload ({trigger}) refused, {which} keep serving: {e}");
                 Outcome { result: Status::Refused, reason: Some(e.to_string()), serving_model: None, serving_rules: kept }
             }
         }
@@ -300,6 +310,59 @@ pub async fn coordinate(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A stand-in for the online learner behind the model seam.
+    struct Scripted {
+        answer: Option<ModelInfo>,
+        calls: std::sync::Mutex<Vec<PathBuf>>,
+    }
+
+    impl ModelReloader for Scripted {
+        fn reload(&self, path: PathBuf) -> BoxFuture<'static, Result<ModelInfo, ReloadError>> {
+            self.calls.lock().unwrap().push(path.clone());
+            let answer = self.answer.clone().ok_or_else(|| ReloadError::Task(format!("{} refused by the stand-in", path.display())));
+            async move { answer }.boxed()
+        }
+    }
+
+    fn served_model() -> ModelHandle {
+        use crate::features::Vocabulary;
+        use crate::model::snapshot::SnapshotMeta;
+        use crate::model::{Model, NbParams};
+        let s = Settings::defaults();
+        let voc = Vocabulary::new(s.model.vocabulary, 100, 0);
+        let m = Model::new(NbParams::multinomial(1.0), s.analyzer, vec!["a".into(), "b".into()], voc).unwrap();
+        let meta = SnapshotMeta::fresh(&m, Some("served-1".into()));
+        ModelHandle::new(ModelView::new(m, meta, "c0ffee".into(), "served.svm".into()))
+    }
+
+    #[tokio::test]
+    async fn the_model_step_goes_through_the_seam_and_a_refusal_keeps_the_served_model() {
+        let mut settings = Settings::defaults();
+        settings.service.model = "models/current.svm".into();
+        let metrics = Arc::new(Metrics::new());
+        let model = served_model();
+        let refusing = Arc::new(Scripted { answer: None, calls: Default::default() });
+        let r = Reloader::new(Arc::new(settings.clone()), model.clone(), RulesHandle::new(None), refusing.clone(), metrics.clone());
+        let report = r.reload(What::Both, Trigger::Signal).await;
+        assert_eq!(refusing.calls.lock().unwrap().as_slice(), [PathBuf::from("models/current.svm")]);
+        let m = report.model.as_ref().unwrap();
+        assert_eq!(m.result, Status::Refused);
+        assert!(m.reason.as_deref().unwrap().contains("refused by the stand-in"));
+        assert_eq!(m.serving_model.as_ref().unwrap().model_version, "served-1", "the served model is reported as kept");
+        assert_eq!(report.rules.as_ref().unwrap().result, Status::Skipped, "no rules file");
+        assert!(!report.succeeded(What::Both));
+        assert_eq!(metrics.reloads.with_label_values(&["model", "refused"]).get(), 1);
+
+        let mut info = model.current().info();
+        info.model_version = "replayed-2".into();
+        let accepting = Arc::new(Scripted { answer: Some(info), calls: Default::default() });
+        let r = Reloader::new(Arc::new(settings), model.clone(), RulesHandle::new(None), accepting, metrics.clone());
+        let report = r.reload(What::Model, Trigger::Admin).await;
+        assert_eq!(report.model.unwrap().serving_model.unwrap().model_version, "replayed-2");
+        assert!(report.rules.is_none());
+        assert_eq!(metrics.reloads.with_label_values(&["model", "ok"]).get(), 1);
+    }
 
     #[test]
     fn what_parses_the_query_and_covers_targets() {
