@@ -95,8 +95,14 @@ async fn readyz(State(st): State<AdminState>) -> Response {
     }
 }
 
-async fn model_info(State(st): State<AdminState>) -> Response {
-    Json(st.model.current().info()).into_response()
+/// `GET /model`; `?fingerprint=1` adds the count fingerprint (it hashes every row).
+async fn model_info(State(st): State<AdminState>, Query(q): Query<std::collections::HashMap<String, String>>) -> Response {
+    let view = st.model.current();
+    let mut info = view.info();
+    if q.get("fingerprint").is_some_and(|v| v == "1" || v == "true") {
+        info.fingerprint = Some(view.model.fingerprint());
+    }
+    Json(info).into_response()
 }
 
 /// The served rules file, or `null` without one.

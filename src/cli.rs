@@ -41,6 +41,9 @@ pub enum Command {
     BenchStream(BenchStreamArgs),
     /// Write the demo scenario's seeded streams: records, ground truth, label events, manifest.
     Generate(GenerateArgs),
+    /// Run the whole job in process on the invented demo scenario: rules on day one, reviewers'
+    /// labels teaching the model, drift, a live status page; no broker needed.
+    Demo(DemoArgs),
 }
 
 /// How to read an input file.
@@ -83,15 +86,29 @@ pub struct ModelArgs {
 #[derive(Debug, Args)]
 pub struct TrainArgs {
     /// Labelled input file, or - for stdin.
-    #[arg(long, short, required_unless_present = "labels", conflicts_with = "labels")]
+    #[arg(long, short, required_unless_present_any = ["labels", "from_topic"], conflicts_with_all = ["labels", "from_topic"])]
     pub input: Option<PathBuf>,
     /// Fold a label log instead: a JSONL file of complete label events (with corrections),
-    /// learned in file order exactly as the service folds its label topic.
-    #[arg(long, value_name = "FILE")]
+    /// learned in file order exactly as the service folds its label log.
+    #[arg(long, value_name = "FILE", conflicts_with = "from_topic")]
     pub labels: Option<PathBuf>,
-    /// With --labels: add classes first seen in the log instead of refusing them.
-    #[arg(long, requires = "labels")]
+    /// Fold the learned-label topic (default: learning.label_topic) up to its current end,
+    /// with the service's own folding code: rebuilds a model from the source of truth.
+    #[arg(long, value_name = "TOPIC", num_args = 0..=1, default_missing_value = "")]
+    pub from_topic: Option<String>,
+    /// With --labels or --from-topic: fold on top of this model file, from the label-log
+    /// offsets it records (default: an empty model with the classes the log names).
+    #[arg(long, value_name = "FILE")]
+    pub base: Option<PathBuf>,
+    /// With --labels or --from-topic: add classes first seen in the log instead of refusing them.
+    #[arg(long)]
     pub add_classes: bool,
+    /// With --input: the label-log offsets the model records, so a service that loads it
+    /// knows where to replay from. `beginning` (default): the labels in the log are not in
+    /// the training file, fold them all on top. `end`: the training file already holds
+    /// every label in the log so far (needs the broker, or learning.label_path).
+    #[arg(long, value_name = "beginning|end", default_value = "beginning")]
+    pub label_offsets: String,
     /// Where to write the model snapshot.
     #[arg(long, short)]
     pub out: PathBuf,
@@ -288,6 +305,31 @@ pub struct GenerateArgs {
     /// Also write labelled training files, one per phase (record fields plus `class`).
     #[arg(long)]
     pub labelled: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct DemoArgs {
+    /// Seed of the scenario; the same seed streams the same records and labels.
+    #[arg(long, default_value_t = 7)]
+    pub seed: u64,
+    /// Records per stream (a longer run: e.g. 30000 with --rate 1000).
+    #[arg(long, default_value_t = 6000)]
+    pub records: usize,
+    /// Records fed per second per stream (so labels and model publishes keep pace, as in a live stream).
+    #[arg(long, default_value_t = 300.0)]
+    pub rate: f64,
+    /// Which streams: tickets, logs or both (each runs its own service).
+    #[arg(long, default_value = "both")]
+    pub stream: String,
+    /// Where decisions, summaries and the demo's model files go.
+    #[arg(long, short, default_value = "target/sieveline-demo")]
+    pub out: PathBuf,
+    /// Keep the status page up after the stream ends, until Ctrl-C.
+    #[arg(long)]
+    pub keep_open: bool,
+    /// Admin port of the first stream (the next stream uses the next port); 0 picks free ports.
+    #[arg(long, default_value_t = 0)]
+    pub admin_port: u16,
 }
 
 #[derive(Debug, Args)]

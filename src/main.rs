@@ -40,6 +40,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Run(a) => commands::run::run(settings, a),
         Command::BenchStream(a) => commands::bench_stream::run(settings, a),
         Command::Generate(a) => commands::generate::run(a),
+        Command::Demo(a) => commands::demo::run(a),
     }
 }
 

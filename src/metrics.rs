@@ -35,6 +35,23 @@ pub const RULES_LOADED: &str = "sieveline_rules_loaded";
 pub const RELOADS: &str = "sieveline_reloads_total";
 pub const LAST_RELOAD: &str = "sieveline_last_reload_timestamp_seconds";
 
+// Online learning (docs/learning.md).
+pub const LABELS_READ: &str = "sieveline_labels_read_total";
+pub const LABELS_LEARNED: &str = "sieveline_labels_learned_total";
+pub const LABEL_CORRECTIONS: &str = "sieveline_label_corrections_total";
+pub const LABELS_REJECTED: &str = "sieveline_labels_rejected_total";
+pub const LABELS_RESOLVED: &str = "sieveline_labels_resolved_total";
+pub const LABEL_LOG_ERRORS: &str = "sieveline_label_log_errors_total";
+pub const LABEL_LOG_CAUGHT_UP: &str = "sieveline_label_log_caught_up";
+pub const RECENT_RECORDS: &str = "sieveline_recent_records";
+pub const RECENT_RECORDS_LIMIT: &str = "sieveline_recent_records_limit";
+pub const MODEL_PUBLISHES: &str = "sieveline_model_publishes_total";
+pub const MODEL_LABELS_APPLIED: &str = "sieveline_model_labels_applied";
+pub const LABEL_PUBLISH_DELAY: &str = "sieveline_label_publish_delay_seconds";
+pub const SNAPSHOTS: &str = "sieveline_snapshots_total";
+pub const LAST_SNAPSHOT: &str = "sieveline_last_snapshot_timestamp_seconds";
+pub const MODEL_LOADS: &str = "sieveline_model_loads_total";
+
 /// Label of [`RECORDS_DEAD_LETTERED`].
 pub const LABEL_REASON: &str = "reason";
 /// Label of [`DECISIONS`].
@@ -76,6 +93,21 @@ pub struct Metrics {
     pub last_reload: GaugeVec,
     /// Rule ids that have a `rule_decisions` series (the loaded set's).
     rule_series: std::sync::Arc<Mutex<Vec<String>>>,
+    pub labels_read: IntCounter,
+    pub labels_learned: IntCounter,
+    pub label_corrections: IntCounter,
+    pub labels_rejected: IntCounterVec,
+    pub labels_resolved: IntCounter,
+    pub label_log_errors: IntCounter,
+    pub label_log_caught_up: IntGauge,
+    pub recent_records: IntGauge,
+    pub recent_records_limit: IntGauge,
+    pub model_publishes: IntCounter,
+    pub model_labels_applied: IntGauge,
+    pub label_publish_delay: Histogram,
+    pub snapshots: IntCounterVec,
+    pub last_snapshot: IntGauge,
+    pub model_loads: IntCounterVec,
 }
 
 impl Metrics {
@@ -162,6 +194,29 @@ impl Metrics {
             reloads,
             last_reload,
             rule_series: Default::default(),
+            labels_read: counter(LABELS_READ, "Label events read from the learned-label log (every replica reads all of them)."),
+            labels_learned: counter(LABELS_LEARNED, "Label events folded into the model, corrections included."),
+            label_corrections: counter(LABEL_CORRECTIONS, "Label events that replaced an earlier label of the same record."),
+            labels_rejected: counter_vec(
+                LABELS_REJECTED,
+                "Label events refused (learned-label log or id-only labels), by reason; each becomes a dead letter.",
+                LABEL_REASON,
+            ),
+            labels_resolved: counter(LABELS_RESOLVED, "Id-only labels resolved into complete events and acknowledged on the learned-label topic."),
+            label_log_errors: counter(LABEL_LOG_ERRORS, "Errors reading the label log (the reader retries)."),
+            label_log_caught_up: gauge(LABEL_LOG_CAUGHT_UP, "1 once the learner has read every label-log partition to its end since start or reload."),
+            recent_records: gauge(RECENT_RECORDS, "Records in the recent-record cache that resolves id-only labels."),
+            recent_records_limit: gauge(RECENT_RECORDS_LIMIT, "Capacity of the recent-record cache (learning.recent_capacity)."),
+            model_publishes: counter(MODEL_PUBLISHES, "Model views published to the scorers by the learner or a reload."),
+            model_labels_applied: gauge(MODEL_LABELS_APPLIED, "Labels learned on top of the served base model file."),
+            label_publish_delay: histogram(
+                LABEL_PUBLISH_DELAY,
+                "From a label event's log timestamp to the publish of the first view that includes it.",
+                prometheus::exponential_buckets(0.001, 2.0, 16).expect("buckets"),
+            ),
+            snapshots: counter_vec(SNAPSHOTS, "Model snapshots written, by result.", LABEL_RESULT),
+            last_snapshot: gauge(LAST_SNAPSHOT, "Unix time of the last snapshot written (0: none yet)."),
+            model_loads: counter_vec(MODEL_LOADS, "Model files loaded by the learner (start and reload), by result (ok, refused).", LABEL_RESULT),
             registry,
         }
     }

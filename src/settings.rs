@@ -46,6 +46,8 @@ pub struct Settings {
     pub delivery: DeliverySettings,
     pub admin: AdminSettings,
     pub reload: ReloadSettings,
+    pub learning: LearningSettings,
+    pub snapshot: SnapshotSettings,
 }
 
 /// Everything that changes which terms a record yields. Its fingerprint goes
@@ -321,6 +323,101 @@ pub struct ReloadSettings {
     pub debounce_ms: u64,
 }
 
+choice_enum!(
+    /// What the learner does with a label for a class the model does not have.
+    UnknownClasses { Reject => "reject", Add => "add" }
+);
+
+/// Online learning from label events (`docs/learning.md`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LearningSettings {
+    pub enabled: bool,
+    /// The learned-label topic: complete events, read by every replica by assignment.
+    pub label_topic: String,
+    /// Id-only labels, co-partitioned with the input and resolved by the replica that scored the record; "" for none.
+    pub raw_label_topic: String,
+    /// Non-Kafka sources: a file of complete label events, followed as it grows; "" for none.
+    pub label_path: String,
+    pub unknown_classes: UnknownClasses,
+    /// A new view is published at most this long after a label is applied.
+    pub publish_interval_ms: u64,
+    /// Label events read ahead of the learner (bounded queue).
+    pub queue_capacity: usize,
+    /// Recently scored records kept to resolve id-only labels.
+    pub recent_capacity: usize,
+    pub recent_ttl_ms: u64,
+    /// How often the label topic's partition list is refreshed.
+    pub partition_refresh_ms: u64,
+    /// At start, wait at most this long for the label log to be read to its end before scoring.
+    pub catch_up_timeout_ms: u64,
+}
+
+/// Model snapshots written by the service.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SnapshotSettings {
+    /// Where snapshots are written (atomically); "" for none.
+    pub path: String,
+    pub interval_ms: u64,
+}
+
+impl Settings {
+    fn validate_learning(&self) -> Result<(), SettingsError> {
+        let l = &self.learning;
+        if l.enabled && self.source.kind == SourceKind::Kafka && !valid_topic(&l.label_topic) {
+            return Err(invalid("learning.label_topic", &l.label_topic, "a topic name when learning is on with a Kafka source"));
+        }
+        if !l.raw_label_topic.is_empty() {
+            if !valid_topic(&l.raw_label_topic) {
+                return Err(invalid("learning.raw_label_topic", &l.raw_label_topic, "a topic name, or \"\" for none"));
+            }
+            if l.enabled && self.source.kind != SourceKind::Kafka {
+                return Err(invalid("learning.raw_label_topic", &l.raw_label_topic, "\"\" unless source.kind = \"kafka\" (id-only labels are resolved by the replica that consumed the record)"));
+            }
+            if self.source.topics.contains(&l.raw_label_topic) || l.raw_label_topic == l.label_topic {
+                return Err(invalid("learning.raw_label_topic", &l.raw_label_topic, "a topic that is neither a source topic nor learning.label_topic"));
+            }
+        }
+        if l.enabled && self.source.kind == SourceKind::Kafka && self.source.topics.contains(&l.label_topic) {
+            return Err(invalid("learning.label_topic", &l.label_topic, "a topic that is not also a source topic"));
+        }
+        if !(1..=60_000).contains(&l.publish_interval_ms) {
+            return Err(invalid("learning.publish_interval_ms", l.publish_interval_ms, "1 to 60000 milliseconds"));
+        }
+        if !(1..=1_000_000).contains(&l.queue_capacity) {
+            return Err(invalid("learning.queue_capacity", l.queue_capacity, "1 to 1000000"));
+        }
+        if !(1..=100_000_000).contains(&l.recent_capacity) {
+            return Err(invalid("learning.recent_capacity", l.recent_capacity, "1 to 100000000"));
+        }
+        if l.recent_ttl_ms == 0 {
+            return Err(invalid("learning.recent_ttl_ms", l.recent_ttl_ms, "at least 1 millisecond"));
+        }
+        if !(100..=3_600_000).contains(&l.partition_refresh_ms) {
+            return Err(invalid("learning.partition_refresh_ms", l.partition_refresh_ms, "100 to 3600000 milliseconds"));
+        }
+        if l.catch_up_timeout_ms > 3_600_000 {
+            return Err(invalid("learning.catch_up_timeout_ms", l.catch_up_timeout_ms, "0 to 3600000 milliseconds"));
+        }
+        if l.enabled && !l.raw_label_topic.is_empty() {
+            for props in [&self.kafka.properties, &self.kafka.consumer_properties] {
+                if let Some((k, v)) = props.iter().find(|(k, _)| kafka_property_name(k) == "partition.assignment.strategy") {
+                    return Err(invalid(
+                        &format!("kafka.{k}"),
+                        v,
+                        "no value while learning.raw_label_topic is set: the service uses the range assignor so raw labels reach the replica that scored their record",
+                    ));
+                }
+            }
+        }
+        if !(100..=86_400_000).contains(&self.snapshot.interval_ms) {
+            return Err(invalid("snapshot.interval_ms", self.snapshot.interval_ms, "100 to 86400000 milliseconds"));
+        }
+        Ok(())
+    }
+}
+
 impl Settings {
     fn validate_reload(&self) -> Result<(), SettingsError> {
         let d = self.reload.debounce_ms;
@@ -421,6 +518,7 @@ impl Settings {
     pub fn validate(&self) -> Result<(), SettingsError> {
         self.validate_rules()?;
         self.validate_reload()?;
+        self.validate_learning()?;
         let a = &self.analyzer;
         if a.min_token_len == 0 || a.min_token_len > a.max_token_len {
             return Err(invalid(

@@ -5,6 +5,7 @@
 //! 2. `sighup_and_post_reload_each_reload_and_reload_needs_the_token_off_loopback` — with the watcher off, a changed file is not picked up until SIGHUP, then `POST /reload?what=rules`; without the bearer token (RFC 6750) the call is 401; a bad `what` is 400.
 //! 3. `truncated_corrupt_and_foreign_analyzer_models_are_refused_and_a_good_one_is_picked_up` — each bad model file renamed over the served one is refused by the watcher and by `POST /reload` while the old model keeps serving (`/model`, decisions' `model_version`); a good new file is served next.
 //! 4. `a_broken_rules_file_at_start_is_a_settings_error` — exit code 2, the message names the file, the line and the rule.
+//! 5. `with_learning_on_a_model_reload_goes_through_the_learner_and_replays_the_label_log` — the watcher's reload of a good file serves it with the label log replayed on top (version `<checksum>+<labels>`), a truncated one is refused by the learner.
 
 mod common;
 
@@ -268,7 +269,7 @@ fn rules_file_renamed_over_while_streaming_switches_decisions_and_a_broken_one_i
     assert_eq!(st, 422, "{report}");
     assert_eq!(report["trigger"], "admin");
     assert_eq!(report["model"]["result"], "ok");
-    assert_eq!(report["model"]["serving_model"]["model_version"], "base-1");
+    assert_eq!(report["model"]["serving_model"]["file_version"], "base-1");
     assert_eq!(report["rules"]["result"], "refused");
     let reason = report["rules"]["reason"].as_str().unwrap();
     assert!(reason.contains(&format!("{}:12:", rules.display())), "file and line of the regex: {reason}");
@@ -365,7 +366,7 @@ fn truncated_corrupt_and_foreign_analyzer_models_are_refused_and_a_good_one_is_p
 
     let mut svc = Svc::start(&served, None, &[], false, None);
     let first = svc.model_info();
-    assert_eq!(first["model_version"], "base-1");
+    assert_eq!(first["file_version"], "base-1");
     svc.send("r-0", "parcel has not arrived");
 
     let truncated = good[..good.len() / 2].to_vec();
@@ -398,17 +399,19 @@ fn truncated_corrupt_and_foreign_analyzer_models_are_refused_and_a_good_one_is_p
     replace_atomically(&served, &std::fs::read(&m2).unwrap());
     svc.wait_metric(RELOADS, &[("target", "model"), ("result", "ok")], 1.0);
     let next = svc.model_info();
-    assert_eq!(next["model_version"], "next-2");
+    assert_eq!(next["file_version"], "next-2");
     assert_ne!(next["checksum"], first["checksum"]);
+    assert_ne!(next["model_version"], first["model_version"]);
     assert_eq!(svc.metric("sieveline_model_classes", &[]), 4.0);
     svc.send("r-4", "parcel has not arrived");
 
     let out = svc.finish();
+    // Decisions carry the served version (base file checksum + labels applied).
     for id in ["r-0", "r-1", "r-2", "r-3"] {
-        assert_eq!(out[id]["model_version"], "base-1", "{id}");
+        assert_eq!(out[id]["model_version"], first["model_version"], "{id}");
         assert_eq!(out[id]["decided_by"], "model");
     }
-    assert_eq!(out["r-4"]["model_version"], "next-2");
+    assert_eq!(out["r-4"]["model_version"], next["model_version"]);
     assert_eq!(out["r-4"]["class"], "shipping");
 }
 
@@ -430,4 +433,51 @@ fn a_broken_rules_file_at_start_is_a_settings_error() {
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains(&format!("{}:12:", rules.display())) && err.contains("rule \"broken-rule\""), "{err}");
+}
+
+#[test]
+fn with_learning_on_a_model_reload_goes_through_the_learner_and_replays_the_label_log() {
+    let dir = test_dir("reload-learner");
+    let m1 = train(&dir, "base", 400, "base-1", &[]);
+    let m2 = train(&dir, "next", 240, "next-2", &[]);
+    let sum = |p: &Path| sieveline::model::snapshot::read(p, None).unwrap().checksum;
+    let labels = dir.join("labels.jsonl");
+    let events: String = (0..10)
+        .map(|i| {
+            let e = serde_json::json!({"id": format!("G-{i}"), "class": "defects", "fields": {"subject": "crampon strap frayed", "body": "after one climb"}});
+            format!("{e}\n")
+        })
+        .collect();
+    std::fs::write(&labels, events).unwrap();
+    let serve_dir = dir.join("serve");
+    std::fs::create_dir_all(&serve_dir).unwrap();
+    let served = serve_dir.join("model.svm");
+    std::fs::copy(&m1, &served).unwrap();
+    let env = [
+        ("SIEVELINE__LEARNING__ENABLED", "true".to_string()),
+        ("SIEVELINE__LEARNING__LABEL_PATH", labels.display().to_string()),
+    ];
+    let mut svc = Svc::start(&served, None, &env, false, None);
+    let want1 = format!("{}+10", &sum(&m1)[..12]);
+    wait_for(LIMIT, "the label log folded on the base", || (svc.model_info()["model_version"] == want1.as_str()).then_some(()));
+
+    let good = std::fs::read(&m1).unwrap();
+    replace_atomically(&served, &good[..good.len() / 3]);
+    svc.wait_metric(RELOADS, &[("target", "model"), ("result", "refused")], 1.0);
+    assert!(svc.metric("sieveline_model_loads_total", &[("result", "refused")]) >= 1.0, "the learner refused it");
+    assert_eq!(svc.model_info()["model_version"], want1.as_str());
+    svc.send("c-1", "crampon strap frayed");
+
+    replace_atomically(&served, &std::fs::read(&m2).unwrap());
+    svc.wait_metric(RELOADS, &[("target", "model"), ("result", "ok")], 1.0);
+    let want2 = format!("{}+10", &sum(&m2)[..12]);
+    let info = svc.model_info();
+    assert_eq!(info["model_version"], want2.as_str(), "the new file, with the ten labels replayed on top: {info}");
+    assert_eq!(info["file_version"], "next-2");
+    svc.send("c-2", "crampon strap frayed");
+
+    let out = svc.finish();
+    assert_eq!(out["c-1"]["model_version"], want1.as_str());
+    assert_eq!(out["c-2"]["model_version"], want2.as_str());
+    assert_eq!(out["c-2"]["class"], "defects", "the replayed labels teach the new file the novel terms");
 }

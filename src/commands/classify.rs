@@ -19,6 +19,7 @@ pub fn run(mut settings: Settings, args: &ClassifyArgs) -> Result<()> {
     let spec = input_spec(&mut settings, &args.input, &args.io, false)?;
     let analyzer = Analyzer::new(&settings.analyzer).context("analyzer patterns")?;
     let loaded = snapshot::read(&args.model, Some(&settings.analyzer))?;
+    let version = loaded.served_version();
     let model = loaded.model;
     let policy = ReviewPolicy::from_settings(&settings.review);
     let rows = dataset::open(&args.input, &spec)?;
@@ -44,7 +45,7 @@ pub fn run(mut settings: Settings, args: &ClassifyArgs) -> Result<()> {
         analyzer.analyze_fields(row.fields.iter().map(|(t, w)| (t.as_str(), *w)), &mut scratch, &mut bag);
         let (decision, _) = decide_by_model(
             &model,
-            &loaded.meta.model_version,
+            &version,
             row.id.clone(),
             &bag,
             &policy,

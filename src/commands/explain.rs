@@ -57,7 +57,7 @@ pub fn run(mut settings: Settings, args: &ExplainArgs) -> Result<()> {
         texts.iter().map(|(i, t)| FieldText { field: *i, text: t, weight: settings.input.fields[*i].weight }).collect();
     let decider = Decider::from_settings(&settings);
     let model: Option<&Model> = loaded.as_ref().map(|l| &l.model);
-    let version = loaded.as_ref().map(|l| l.meta.model_version.clone()).unwrap_or_default();
+    let version = loaded.as_ref().map(|l| l.served_version()).unwrap_or_default();
     let mut s = BlendScratch::default();
     let decision = decider.decide(&analyzer, rules.as_ref(), model, &version, None, &fields, &mut s);
     let traces = rules.as_ref().map(|r| r.explain(&s.terms, &fields, args.all)).unwrap_or_default();

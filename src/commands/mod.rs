@@ -2,6 +2,7 @@
 
 pub mod bench_stream;
 pub mod classify;
+pub mod demo;
 pub mod eval;
 pub mod explain;
 pub mod generate;
@@ -12,6 +13,7 @@ pub mod rules_input;
 pub mod rules_test;
 pub mod run;
 pub mod train;
+pub mod train_log;
 
 use std::path::Path;
 

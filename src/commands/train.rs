@@ -20,9 +20,10 @@ use super::{apply_model_args, input_spec, Skipped};
 
 pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
     apply_model_args(&mut settings, &args.model)?;
-    if let Some(labels) = &args.labels {
-        return train_from_labels(settings, args, labels);
+    if args.labels.is_some() || args.from_topic.is_some() {
+        return super::train_log::run(settings, args);
     }
+    let label_offsets = super::train_log::offsets_at_train_time(&settings, &args.label_offsets)?;
     let input = args.input.as_ref().expect("clap requires --input or --labels");
     let spec = input_spec(&mut settings, input, &args.io, true)?;
     let analyzer = Analyzer::new(&settings.analyzer).context("analyzer patterns")?;
@@ -85,7 +86,7 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
     classes.sort();
     model.reorder_classes(&classes)?;
     model.set_params(params)?;
-    let meta = SnapshotMeta::fresh(&model, args.model_version.clone());
+    let meta = SnapshotMeta { label_offsets, ..SnapshotMeta::fresh(&model, args.model_version.clone()) };
     let checksum = snapshot::write(&args.out, &model, &meta)?;
     let secs = started.elapsed().as_secs_f64();
     eprintln!(
@@ -104,83 +105,6 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
     if let Some(path) = &args.dump_counts {
         write_dump(path, &model, &dump_rows)?;
     }
-    Ok(())
-}
-
-/// Fold a file of complete label events, in order, with `Folder` — the same
-/// code the service runs on its learned-label topic. Classes are the sorted
-/// classes of the log (or only those of a starting point with --add-classes off).
-fn train_from_labels(mut settings: Settings, args: &TrainArgs, path: &std::path::Path) -> Result<()> {
-    use crate::learn::{FoldOutcome, Folder, UnknownClassPolicy};
-    use std::io::BufRead;
-    let _ = input_spec(&mut settings, path, &args.io, false)?;
-    let started = Instant::now();
-    let read = || -> Result<Vec<Vec<u8>>> {
-        let f = std::fs::File::open(path).with_context(|| format!("open {}", path.display()))?;
-        let mut lines = Vec::new();
-        for l in std::io::BufReader::new(f).split(b'\n') {
-            let l = l?;
-            if !l.iter().all(u8::is_ascii_whitespace) {
-                lines.push(l);
-            }
-        }
-        Ok(lines)
-    };
-    let lines = read()?;
-    let mut classes: Vec<String> = lines
-        .iter()
-        .filter_map(|l| crate::learn::LabelEvent::parse(l).ok())
-        .flat_map(|e| std::iter::once(e.class).chain(e.replaces))
-        .collect();
-    classes.sort();
-    classes.dedup();
-    if classes.is_empty() {
-        return Err(DatasetError::Empty { path: path.display().to_string() }.into());
-    }
-    let m = &settings.model;
-    let model = Model::new(
-        NbParams::from_settings(m),
-        settings.analyzer.clone(),
-        classes,
-        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
-    )?;
-    let analyzer = Analyzer::new(&settings.analyzer).context("analyzer patterns")?;
-    let policy = if args.add_classes { UnknownClassPolicy::Add } else { UnknownClassPolicy::Reject };
-    let meta0 = SnapshotMeta { label_offsets: Default::default(), created_at: String::new(), model_version: String::new(), labels_learned: 0 };
-    let mut folder = Folder::new(model, &meta0, analyzer, settings.input.fields.clone(), policy);
-    let name = format!("file:{}", path.display());
-    let mut rejected: std::collections::BTreeMap<&'static str, u64> = Default::default();
-    let mut corrections = 0u64;
-    for (i, l) in lines.iter().enumerate() {
-        match folder.apply(&name, 0, i as i64, l) {
-            FoldOutcome::Learned { corrected_from, .. } => corrections += u64::from(corrected_from.is_some()),
-            FoldOutcome::Rejected(r) => {
-                if args.io.strict {
-                    anyhow::bail!("{}: line {}: {r} (--strict)", path.display(), i + 1);
-                }
-                if rejected.values().sum::<u64>() < 5 {
-                    eprintln!("  refused line {}: {r}", i + 1);
-                }
-                *rejected.entry(r.reason()).or_default() += 1;
-            }
-            FoldOutcome::AlreadyFolded => {}
-        }
-    }
-    let labels_learned = folder.labels_learned();
-    let model = folder.into_model();
-    // A file is not the label topic: the snapshot records no topic offsets, so a
-    // service loading it folds its label topic from the start.
-    let meta = SnapshotMeta { labels_learned, ..SnapshotMeta::fresh(&model, args.model_version.clone()) };
-    let checksum = snapshot::write(&args.out, &model, &meta)?;
-    eprintln!(
-        "folded {labels_learned} label events ({corrections} corrections) in {:.2}s; refused {}: {:?}; {} classes; vocabulary {} terms",
-        started.elapsed().as_secs_f64(),
-        rejected.values().sum::<u64>(),
-        rejected,
-        model.classes().len(),
-        model.vocabulary_size()
-    );
-    eprintln!("wrote {} (version {}, checksum {}, count fingerprint {})", args.out.display(), meta.model_version, &checksum[..16], model.fingerprint());
     Ok(())
 }
 

@@ -9,7 +9,8 @@
 //! - [`compose`]: template filling and typos;
 //! - [`tickets`], [`logs`]: one record each;
 //! - [`reviewers`]: label events with delays, mistakes and corrections;
-//! - [`write`]: the files and the manifest.
+//! - [`write`]: the files and the manifest;
+//! - [`report`]: the `demo` command's figures from decisions and ground truth.
 //!
 //! Randomness: one `SplitMix64` per stream and purpose, seeded from the demo
 //! seed, so the ticket text does not change when label parameters do, and
@@ -17,6 +18,7 @@
 
 pub mod compose;
 pub mod logs;
+pub mod report;
 pub mod reviewers;
 pub mod script;
 pub mod tickets;

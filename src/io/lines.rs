@@ -21,6 +21,11 @@ impl LineSource {
         LineSource { name: "stdin".into(), reader: Box::new(BufReader::with_capacity(1 << 16, tokio::io::stdin())) }
     }
 
+    /// Lines from any reader (the demo feeds the pipeline through an in-process pipe).
+    pub fn from_reader(name: &str, reader: Box<dyn AsyncBufRead + Unpin + Send>) -> LineSource {
+        LineSource { name: name.to_string(), reader }
+    }
+
     pub async fn file(path: &Path) -> std::io::Result<LineSource> {
         let f = tokio::fs::File::open(path).await?;
         Ok(LineSource { name: path.display().to_string(), reader: Box::new(BufReader::with_capacity(1 << 16, f)) })
@@ -53,6 +58,11 @@ impl LineSink {
             out: Mutex::new(std::io::BufWriter::with_capacity(1 << 16, Box::new(std::io::stdout()))),
             flush_each,
         }
+    }
+
+    /// Lines to any writer (the demo reads its decisions back as they are written).
+    pub fn writer(w: Box<dyn Write + Send>, flush_each: bool) -> LineSink {
+        LineSink { out: Mutex::new(std::io::BufWriter::with_capacity(1 << 16, w)), flush_each }
     }
 
     pub fn file(path: &Path, flush_each: bool) -> std::io::Result<LineSink> {
@@ -91,6 +101,15 @@ pub fn render_line(o: &Outgoing) -> Vec<u8> {
             line.extend_from_slice(kind.as_bytes());
             line.extend_from_slice(b"\",");
             line.extend_from_slice(&o.payload[1..]);
+            line
+        }
+        OutKind::Label => {
+            let mut line = Vec::with_capacity(o.payload.len() + o.topic.len() + 40);
+            line.extend_from_slice(b"{\"destination\":");
+            serde_json::to_writer(&mut line, &o.topic).expect("string serializes");
+            line.extend_from_slice(b",\"kind\":\"label\",\"event\":");
+            line.extend_from_slice(&o.payload);
+            line.push(b'}');
             line
         }
         OutKind::DeadLetter { reason } => {

@@ -24,6 +24,8 @@ pub enum OutKind {
     Decision { class: Arc<str> },
     Review { class: Arc<str> },
     DeadLetter { reason: &'static str },
+    /// An id-only label resolved into a complete event, on the learned-label topic.
+    Label,
 }
 
 /// One output record, owned, ready for a sink.

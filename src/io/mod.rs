@@ -2,6 +2,7 @@
 //!
 //! - `codec`: bytes → fields (JSON, text) or a dead-letter reason;
 //! - `message`: the inbound/outgoing record shapes; `headers`: header names and reasons;
+//! - `label_file`: a label log in a followed file (the learner's non-Kafka label source);
 //! - `lines`: stdin/file sources and stdout/file sinks; `sink`: the sink a service writes to;
 //! - `kafka/`: client config, consumer with rebalance handling, producer sink, topic lookup.
 //!
@@ -11,6 +12,7 @@ pub mod codec;
 pub mod dataset;
 pub mod headers;
 pub mod kafka;
+pub mod label_file;
 pub mod lines;
 pub mod message;
 pub mod record;

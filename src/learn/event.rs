@@ -8,6 +8,9 @@
 //! Id-only (the raw label topic): `{"id": "t-1042", "class": "returns", "partition": 3}`;
 //! `partition` is copied from the decision when input records are not keyed by id.
 //! Optional in both: `weight` (a multiple of 1/16, default 1), `reviewer`, `ts`.
+//! A complete event made by resolving an id-only label also carries
+//! `scored_ms`, when the resolving replica scored the record (Unix ms), for
+//! the label-delay statistic; it never changes what is learned.
 
 use serde::{Deserialize, Serialize};
 use serde_json::{Map, Value};
@@ -30,6 +33,9 @@ pub enum LabelReject {
     #[error("cannot correct: the record was not learned as {0:?}")]
     NotLearned(String),
 }
+
+/// Every `LabelReject::reason`, for metrics initialisation and docs.
+pub const REASONS: &[&str] = &["malformed label", "missing field", "unknown class", "unknown id", "bad weight", "not learned"];
 
 impl LabelReject {
     /// The short reason used in dead-letter headers and metric labels.
@@ -67,6 +73,8 @@ pub struct LabelEvent {
     #[serde(skip_serializing_if = "Option::is_none")]
     pub replaces: Option<String>,
     pub weight: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub scored_ms: Option<i64>,
 }
 
 /// An id-only label as reviewers send it.
@@ -141,7 +149,11 @@ impl LabelEvent {
                 }
             }
         }
-        Ok(LabelEvent { id, class, fields, features, replaces, weight })
+        let scored_ms = match m.get("scored_ms") {
+            None | Some(Value::Null) => None,
+            Some(v) => Some(v.as_i64().ok_or_else(|| LabelReject::Malformed("scored_ms must be an integer".into()))?),
+        };
+        Ok(LabelEvent { id, class, fields, features, replaces, weight, scored_ms })
     }
 
     pub fn to_json(&self) -> Vec<u8> {

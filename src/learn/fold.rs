@@ -22,9 +22,25 @@ pub enum UnknownClassPolicy {
     Add,
 }
 
+/// What the model said about a label's record just before learning it
+/// (test-then-train): the prequential prediction behind feedback accuracy.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Predicted {
+    pub class: String,
+    pub confidence: f64,
+}
+
 #[derive(Debug, Clone, PartialEq)]
 pub enum FoldOutcome {
-    Learned { class: String, corrected_from: Option<String>, added_class: bool },
+    Learned {
+        class: String,
+        corrected_from: Option<String>,
+        added_class: bool,
+        /// With prequential scoring on, for a first label (not a correction) on a trained model.
+        predicted: Option<Predicted>,
+        /// When the record was scored, if the event says (resolved id-only labels do).
+        scored_ms: Option<i64>,
+    },
     Rejected(LabelReject),
     /// Below the partition's folded offset: already in the counts.
     AlreadyFolded,
@@ -39,6 +55,8 @@ pub struct Folder {
     fields: Vec<FieldSetting>,
     scratch: AnalyzerScratch,
     bag: TermBag,
+    prequential: bool,
+    score: crate::model::ScoreScratch,
 }
 
 impl Folder {
@@ -53,7 +71,14 @@ impl Folder {
             fields,
             scratch: AnalyzerScratch::default(),
             bag: TermBag::new(),
+            prequential: false,
+            score: Default::default(),
         }
+    }
+
+    /// Score each label's record before learning it, and report the prediction.
+    pub fn set_prequential(&mut self, on: bool) {
+        self.prequential = on;
     }
 
     pub fn model(&self) -> &Model {
@@ -80,6 +105,8 @@ impl Folder {
             created_at: crate::clock::rfc3339_now(),
             model_version,
             labels_learned: self.labels_learned,
+            base: String::new(),
+            base_labels: 0,
         }
     }
 
@@ -125,14 +152,29 @@ impl Folder {
             }
         }
         self.build_bag(e)?;
+        let predicted = (self.prequential && e.replaces.is_none() && !self.model.is_empty()).then(|| {
+            let sc = self.model.score(&self.bag, &mut self.score);
+            Predicted { class: self.model.classes()[sc.best].clone(), confidence: sc.confidence }
+        });
         if let Some(old) = &e.replaces {
             self.model.unlearn(&self.bag, old, e.weight).map_err(|_| LabelReject::NotLearned(old.clone()))?;
         }
         if !known {
+            // Classes stay sorted, so replicas that see new classes in different
+            // interleavings of the log's partitions end with the same class order.
             self.model.add_class(&e.class).expect("checked addable");
+            let mut order = self.model.classes().to_vec();
+            order.sort();
+            self.model.reorder_classes(&order).expect("a permutation of the classes");
         }
         self.model.learn(&self.bag, &e.class, e.weight).map_err(|err| LabelReject::Malformed(err.to_string()))?;
-        Ok(FoldOutcome::Learned { class: e.class.clone(), corrected_from: e.replaces.clone(), added_class: !known })
+        Ok(FoldOutcome::Learned {
+            class: e.class.clone(),
+            corrected_from: e.replaces.clone(),
+            added_class: !known,
+            predicted,
+            scored_ms: e.scored_ms,
+        })
     }
 
     fn build_bag(&mut self, e: &LabelEvent) -> Result<(), LabelReject> {
@@ -182,7 +224,7 @@ mod tests {
             Vocabulary::new(s.model.vocabulary, 10_000, 0),
         )
         .unwrap();
-        let meta = SnapshotMeta { label_offsets: Default::default(), created_at: String::new(), model_version: "t".into(), labels_learned: 0 };
+        let meta = SnapshotMeta { model_version: "t".into(), ..SnapshotMeta::default() };
         Folder::new(m, &meta, Analyzer::new(&s.analyzer).unwrap(), s.input.fields.clone(), policy)
     }
 
@@ -224,6 +266,53 @@ mod tests {
         let mut g = folder(UnknownClassPolicy::Add);
         assert!(matches!(g.apply("l", 0, 0, ev), FoldOutcome::Learned { added_class: true, .. }));
         assert_eq!(g.model().classes().len(), 3);
+    }
+
+    #[test]
+    fn new_classes_end_in_the_same_order_whatever_the_interleaving() {
+        let w = br#"{"id":"w","class":"warranty","fields":{"body":"seam split after a week"}}"#;
+        let a = br#"{"id":"a","class":"apparel","fields":{"body":"jacket sizes run small"}}"#;
+        // Two partitions of one log, read in two interleavings by two replicas.
+        let mut f = folder(UnknownClassPolicy::Add);
+        f.apply("l", 0, 0, w);
+        f.apply("l", 1, 0, a);
+        let mut g = folder(UnknownClassPolicy::Add);
+        g.apply("l", 1, 0, a);
+        g.apply("l", 0, 0, w);
+        assert_eq!(f.model().classes(), ["apparel", "billing", "returns", "warranty"]);
+        assert_eq!(f.model().classes(), g.model().classes());
+        assert_eq!(f.model().fingerprint(), g.model().fingerprint());
+    }
+
+    #[test]
+    fn prequential_prediction_is_made_before_learning_and_not_for_corrections() {
+        let mut f = folder(UnknownClassPolicy::Reject);
+        f.set_prequential(true);
+        match f.apply("l", 0, 0, A) {
+            FoldOutcome::Learned { predicted, .. } => assert_eq!(predicted, None, "an empty model predicts nothing"),
+            o => panic!("{o:?}"),
+        }
+        let b2 = br#"{"id":"r2","class":"billing","fields":{"body":"card charged twice for the order"},"scored_ms":5}"#;
+        f.apply("l", 0, 1, b2);
+        let again = br#"{"id":"r3","class":"billing","fields":{"body":"refund the boots"}}"#;
+        match f.apply("l", 0, 2, again) {
+            FoldOutcome::Learned { predicted: Some(p), .. } => {
+                assert_eq!(p.class, "returns", "scored before learning: only returns knows these terms");
+                assert!(p.confidence > 0.5);
+            }
+            o => panic!("{o:?}"),
+        }
+        match f.apply("l", 0, 3, A_TO_BILLING) {
+            FoldOutcome::Learned { predicted, corrected_from, .. } => {
+                assert_eq!(predicted, None);
+                assert_eq!(corrected_from.as_deref(), Some("returns"));
+            }
+            o => panic!("{o:?}"),
+        }
+        match f.apply("l", 0, 4, br#"{"id":"r4","class":"billing","fields":{"body":"card"},"scored_ms":1234}"#) {
+            FoldOutcome::Learned { scored_ms, .. } => assert_eq!(scored_ms, Some(1234)),
+            o => panic!("{o:?}"),
+        }
     }
 
     #[test]

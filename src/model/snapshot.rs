@@ -37,12 +37,23 @@ const MAX_HEADER: usize = 64 << 20;
 pub type LabelOffsets = BTreeMap<String, BTreeMap<i32, i64>>;
 
 /// What a snapshot records besides the counts.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 pub struct SnapshotMeta {
     pub label_offsets: LabelOffsets,
     pub created_at: String,
     pub model_version: String,
     pub labels_learned: u64,
+    /// Checksum of the model file this snapshot was folded on top of; empty
+    /// for a file written by `train` (it is its own base).
+    #[serde(default, skip_serializing_if = "String::is_empty")]
+    pub base: String,
+    /// `labels_learned` of that base file.
+    #[serde(default, skip_serializing_if = "is_zero")]
+    pub base_labels: u64,
+}
+
+fn is_zero(n: &u64) -> bool {
+    *n == 0
 }
 
 impl SnapshotMeta {
@@ -51,7 +62,16 @@ impl SnapshotMeta {
         let created_at = crate::clock::rfc3339_now();
         let model_version =
             version.unwrap_or_else(|| format!("{}-{}", &created_at[..10], &model.fingerprint()[..8]));
-        SnapshotMeta { label_offsets: BTreeMap::new(), created_at, model_version, labels_learned: 0 }
+        SnapshotMeta { label_offsets: BTreeMap::new(), created_at, model_version, ..SnapshotMeta::default() }
+    }
+
+    /// The base file's checksum and its label count, given this file's own checksum.
+    pub fn lineage<'a>(&'a self, own_checksum: &'a str) -> (&'a str, u64) {
+        if self.base.is_empty() {
+            (own_checksum, self.labels_learned)
+        } else {
+            (&self.base, self.base_labels)
+        }
     }
 }
 
@@ -79,6 +99,20 @@ pub struct Loaded {
     pub model: Model,
     pub meta: SnapshotMeta,
     pub checksum: String,
+}
+
+/// The version decisions carry: the first 12 hex digits of the base model
+/// file's checksum, `+`, and the number of labels learned on top of it.
+pub fn served_version(base: &str, applied: u64) -> String {
+    format!("{}+{applied}", &base[..base.len().min(12)])
+}
+
+impl Loaded {
+    /// The version decisions scored with this file carry.
+    pub fn served_version(&self) -> String {
+        let (base, base_labels) = self.meta.lineage(&self.checksum);
+        served_version(base, self.meta.labels_learned.saturating_sub(base_labels))
+    }
 }
 
 /// Encode a model into the file format.
@@ -311,6 +345,8 @@ mod tests {
             created_at: "2026-01-05T10:00:00Z".into(),
             model_version: "test-1".into(),
             labels_learned: 21,
+            base: "ab".repeat(32),
+            base_labels: 5,
         }
     }
 

@@ -64,6 +64,7 @@ impl AckTicket {
                 m.decisions.with_label_values(&[class.as_ref()]).inc();
             }
             OutKind::DeadLetter { reason } => m.dead_lettered.with_label_values(&[reason]).inc(),
+            OutKind::Label => m.labels_resolved.inc(),
         }
         if let Some(ts) = self.input_timestamp_ms {
             let secs = (crate::runtime::now_ms() - ts).max(0) as f64 / 1000.0;

@@ -28,4 +28,6 @@ pub enum ServiceError {
     AdminBind { addr: String, source: std::io::Error },
     #[error("topic {topic} ({role}) does not exist; create it or set routing.create_missing_topics = true")]
     MissingTopic { topic: String, role: &'static str },
+    #[error("learner: {0}")]
+    Learner(String),
 }

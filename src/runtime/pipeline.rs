@@ -11,12 +11,13 @@ use crate::io::headers::REASON_UNKNOWN_DESTINATION;
 use crate::io::kafka::consumer::SourceConsumer;
 use crate::io::kafka::producer::{is_unknown_topic, reroute_unknown, Failed};
 use crate::io::lines::LineSource;
-use crate::io::message::{Inbound, OutKind};
+use crate::io::message::{Inbound, OutKind, Outgoing};
 use crate::io::sink::{SendError, Sink};
 use crate::metrics::Metrics;
 use crate::runtime::ack::{AckShared, AckTicket};
 use crate::runtime::error::ServiceError;
 use crate::runtime::model_view::ModelHandle;
+use crate::runtime::resolver::Resolver;
 use crate::runtime::router::{RouteScratch, Router};
 use crate::runtime::rules_view::RulesHandle;
 use crate::runtime::watermark::{PartitionTrack, Tracker};
@@ -36,6 +37,8 @@ pub struct Pipeline {
     pub limit: usize,
     /// Where immediate send failures go (the Kafka sink's retry channel).
     pub retry: Option<mpsc::UnboundedSender<Failed>>,
+    /// Remembers scored records and resolves id-only labels (learning with a raw label topic).
+    pub resolver: Option<Arc<Resolver>>,
 }
 
 impl Pipeline {
@@ -77,12 +80,30 @@ impl Pipeline {
         // One model view and one rules set per record, each read once.
         let view = self.model.current();
         let rules = self.rules.current();
-        let (mut out, decision) = self.router.route(&view, rules.as_deref().map(|r| &r.set), rec, scratch);
+        let (out, decision) = self.router.route(&view, rules.as_deref().map(|r| &r.set), rec, scratch);
         drop((view, rules));
         m.scoring_latency.observe(started.elapsed().as_secs_f64());
         if let Some(d) = &decision {
             m.count_decided_by(&d.decided_by);
         }
+        if let (Some(r), Some(d)) = (&self.resolver, &decision) {
+            if let (Some(id), Some(class)) = (&d.id, crate::runtime::router::class_label(&out.kind)) {
+                r.remember(id, scratch.terms(), class.clone(), rec.partition);
+            }
+        }
+        self.emit(track, rec, out).await
+    }
+
+    /// Resolve one id-only label from the raw label topic into its output.
+    async fn process_label(&self, track: &Arc<PartitionTrack>, rec: &Inbound<'_>, resolver: &Resolver) -> Result<(), ServiceError> {
+        let view = self.model.current();
+        let out = resolver.resolve(rec, &view);
+        drop(view);
+        self.emit(track, rec, out).await
+    }
+
+    /// Hand one output to the sink, tracked until it is acknowledged.
+    async fn emit(&self, track: &Arc<PartitionTrack>, rec: &Inbound<'_>, mut out: Outgoing) -> Result<(), ServiceError> {
         if !matches!(out.kind, OutKind::DeadLetter { .. }) && !self.sink.destination_exists(&out.topic).await {
             let detail = format!("topic {} does not exist", out.topic);
             out = self.router.dead_letter(rec, REASON_UNKNOWN_DESTINATION, Some(detail));
@@ -138,7 +159,10 @@ impl Pipeline {
                 headers,
                 timestamp_ms: msg.timestamp().to_millis(),
             };
-            self.process(&track, &rec, &mut scratch).await?;
+            match &self.resolver {
+                Some(r) if r.raw_topic == rec.topic => self.process_label(&track, &rec, r).await?,
+                _ => self.process(&track, &rec, &mut scratch).await?,
+            }
         }
         Ok(())
     }

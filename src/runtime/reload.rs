@@ -1,7 +1,7 @@
 //! Hot reload: `Reloader` loads and validates the model and/or the rules off the scoring path and swaps them in atomically (a refused file leaves the old one serving), one reload at a time; the coordinator task feeds it from the file watcher (debounced) and SIGHUP, and `POST /reload` calls it directly. The model step goes through the `ModelReloader` seam.
 
 use std::path::PathBuf;
-use std::sync::Arc;
+use std::sync::{Arc, OnceLock};
 use std::time::Duration;
 
 use futures::future::BoxFuture;
@@ -12,6 +12,7 @@ use tokio_util::sync::CancellationToken;
 use crate::error::SnapshotError;
 use crate::metrics::Metrics;
 use crate::rules::RulesError;
+use crate::runtime::learner::LearnerHandle;
 use crate::runtime::model_view::{ModelHandle, ModelInfo, ModelView};
 use crate::runtime::rules_view::{RulesHandle, RulesInfo, RulesView};
 use crate::runtime::watch::{Debouncer, Target, WatchFlags};
@@ -26,6 +27,9 @@ pub enum ReloadError {
     Rules(#[from] RulesError),
     #[error("the reload task failed: {0}")]
     Task(String),
+    /// Refused by the learner, with its reason.
+    #[error("{0}")]
+    Learner(String),
 }
 
 /// Loads, validates and publishes a model file, answering what it now serves.
@@ -57,6 +61,30 @@ impl ModelReloader for PublishDirectly {
             let info = view.info();
             handle.publish(view);
             Ok(info)
+        }
+        .boxed()
+    }
+}
+
+/// The model reload with online learning on: the learner loads and validates
+/// the file, replays the label log from the file's offsets and publishes the
+/// result in one swap (docs/learning.md); the answer comes once it serves.
+pub struct ThroughLearner {
+    /// Set once the learner runs (it starts after the reload coordinator).
+    pub learner: Arc<OnceLock<Arc<LearnerHandle>>>,
+    pub model: ModelHandle,
+}
+
+impl ModelReloader for ThroughLearner {
+    fn reload(&self, path: PathBuf) -> BoxFuture<'static, Result<ModelInfo, ReloadError>> {
+        let (learner, model) = (self.learner.get().cloned(), self.model.clone());
+        async move {
+            let learner = learner.ok_or_else(|| ReloadError::Task("the learner is not running yet".into()))?;
+            match learner.reload(path).await {
+                Ok(Ok(_version)) => Ok(model.current().info()),
+                Ok(Err(reason)) => Err(ReloadError::Learner(reason)),
+                Err(_) => Err(ReloadError::Task("the learner stopped before answering".into())),
+            }
         }
         .boxed()
     }
@@ -349,7 +377,7 @@ mod tests {
         let m = report.model.as_ref().unwrap();
         assert_eq!(m.result, Status::Refused);
         assert!(m.reason.as_deref().unwrap().contains("refused by the stand-in"));
-        assert_eq!(m.serving_model.as_ref().unwrap().model_version, "served-1", "the served model is reported as kept");
+        assert_eq!(m.serving_model.as_ref().unwrap().file_version, "served-1", "the served model is reported as kept");
         assert_eq!(report.rules.as_ref().unwrap().result, Status::Skipped, "no rules file");
         assert!(!report.succeeded(What::Both));
         assert_eq!(metrics.reloads.with_label_values(&["model", "refused"]).get(), 1);

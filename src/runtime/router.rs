@@ -10,7 +10,7 @@ use crate::io::message::{Inbound, OutKind, Outgoing};
 use crate::rules::{FieldText, RuleSet};
 use crate::runtime::model_view::ModelView;
 use crate::settings::{CodecKind, Settings};
-use crate::text::Analyzer;
+use crate::text::{Analyzer, TermBag};
 
 /// Records with up to this many text fields are decided without a heap allocation.
 const INLINE_FIELDS: usize = 8;
@@ -42,6 +42,13 @@ impl TopicTemplate {
 pub struct RouteScratch {
     decoded: Decoded,
     blend: BlendScratch,
+}
+
+impl RouteScratch {
+    /// The analyzed terms of the last record routed.
+    pub fn terms(&self) -> &TermBag {
+        &self.blend.terms.bag
+    }
 }
 
 /// Everything needed to turn an input into an output, built once from settings.
@@ -187,7 +194,7 @@ fn decision_payload(d: &Decision, original: &[u8], codec: CodecKind) -> Vec<u8> 
 pub fn class_label(kind: &OutKind) -> Option<&Arc<str>> {
     match kind {
         OutKind::Decision { class } | OutKind::Review { class } => Some(class),
-        OutKind::DeadLetter { .. } => None,
+        OutKind::DeadLetter { .. } | OutKind::Label => None,
     }
 }
 

@@ -1,6 +1,6 @@
 //! `Service`: built from `Settings` (model and rules loaded and validated first), run until the input ends or the shutdown token fires; then drain, flush, commit and stop every task it started (the reload coordinator among them).
 
-use std::path::PathBuf;
+use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 use std::time::Duration;
@@ -21,9 +21,17 @@ use crate::io::sink::Sink;
 use crate::metrics::Metrics;
 use crate::runtime::ack::{AckShared, LatencyHook};
 use crate::runtime::error::ServiceError;
-use crate::runtime::model_view::{ModelHandle, ModelView};
+use crate::io::kafka::label_log::KafkaLabelLog;
+use crate::io::label_file::FileLabelLog;
+use crate::io::message::Outgoing;
+use crate::runtime::ack::AckTicket;
+use crate::runtime::label_log::LabelLog;
+use crate::runtime::learner::{self, LearnObserver, LearnerConfig, LearnerHandle, LearnerParts};
+use crate::runtime::model_view::ModelHandle;
+use crate::runtime::resolver::Resolver;
+use crate::runtime::startup;
 use crate::runtime::pipeline::{retry_loop, Pipeline};
-use crate::runtime::reload::{self, ModelReloader, PublishDirectly, Reloader};
+use crate::runtime::reload::{self, ModelReloader, PublishDirectly, Reloader, ThroughLearner};
 use crate::runtime::router::Router;
 use crate::runtime::rules_view::{RulesHandle, RulesView};
 use crate::runtime::watermark::{NoOffsets, OffsetSink, Tracker};
@@ -68,6 +76,17 @@ pub struct Service {
     router: Arc<Router>,
     readiness: Arc<Readiness>,
     latency_hook: Option<LatencyHook>,
+    /// A label log given by the embedding program (the demo), used instead of the settings' one.
+    label_log: std::sync::Mutex<Option<Box<dyn LabelLog>>>,
+    observer: Option<Arc<dyn LearnObserver>>,
+    /// The running learner, for reloads and snapshots on request.
+    learner: Arc<std::sync::OnceLock<Arc<LearnerHandle>>>,
+    /// A line source and a sink given by the embedding program (the demo), used
+    /// instead of stdin/file and stdout/file.
+    source_override: std::sync::Mutex<Option<LineSource>>,
+    sink_override: std::sync::Mutex<Option<Sink>>,
+    /// The admin endpoint's address once bound.
+    admin_addr: Arc<std::sync::OnceLock<std::net::SocketAddr>>,
 }
 
 impl Service {
@@ -77,19 +96,24 @@ impl Service {
         if settings.service.model.is_empty() {
             return Err(ServiceError::NoModel);
         }
-        let view = ModelView::load(&PathBuf::from(&settings.service.model), &settings.analyzer)
-            .map_err(ServiceError::Model)?;
+        let metrics = Arc::new(Metrics::new());
+        let view = startup::initial_view(&settings, &metrics).map_err(ServiceError::Model)?;
         let router = Router::new(&settings).map_err(|e| ServiceError::Analyzer(e.to_string()))?;
         let rules = match settings.rules.path.as_str() {
             "" => None,
-            path => Some(RulesView::load(&settings, &PathBuf::from(path)).map_err(ServiceError::Rules)?),
+            path => Some(RulesView::load(&settings, Path::new(path)).map_err(ServiceError::Rules)?),
         };
-        let metrics = Arc::new(Metrics::new());
         metrics.rules_published(rules.iter().flat_map(|r| r.set.rules().iter().map(|x| x.id.as_str())));
         metrics.model_classes.set(view.classes.len() as i64);
+        metrics.model_labels_applied.set(view.applied as i64);
         metrics.in_flight_limit.set(settings.delivery.max_in_flight_per_partition as i64);
-        for r in crate::io::headers::REASONS {
+        for r in crate::io::headers::REASONS.iter().chain(crate::learn::event::REASONS) {
             metrics.dead_lettered.with_label_values(&[r]);
+        }
+        if settings.learning.enabled {
+            for r in crate::learn::event::REASONS {
+                metrics.labels_rejected.with_label_values(&[r]);
+            }
         }
         let readiness = Arc::new(Readiness::default());
         readiness.model_loaded.store(true, Ordering::SeqCst);
@@ -102,7 +126,43 @@ impl Service {
             router: Arc::new(router),
             readiness,
             latency_hook: None,
+            label_log: std::sync::Mutex::new(None),
+            observer: None,
+            learner: Arc::new(std::sync::OnceLock::new()),
+            source_override: std::sync::Mutex::new(None),
+            sink_override: std::sync::Mutex::new(None),
+            admin_addr: Arc::new(std::sync::OnceLock::new()),
         })
+    }
+
+    /// Read records from `source` instead of stdin or the settings' file.
+    pub fn set_line_source(&mut self, source: LineSource) {
+        *self.source_override.lock().expect("source slot") = Some(source);
+    }
+
+    /// Write outputs to `sink` instead of the settings' sink.
+    pub fn set_sink(&mut self, sink: Sink) {
+        *self.sink_override.lock().expect("sink slot") = Some(sink);
+    }
+
+    /// Where the admin endpoint listens, once `run` has bound it.
+    pub fn admin_addr(&self) -> Arc<std::sync::OnceLock<std::net::SocketAddr>> {
+        self.admin_addr.clone()
+    }
+
+    /// Learn from this label log instead of the one the settings name.
+    pub fn set_label_log(&mut self, log: Box<dyn LabelLog>) {
+        *self.label_log.lock().expect("label log slot") = Some(log);
+    }
+
+    /// Tell `observer` what the learner does.
+    pub fn set_learn_observer(&mut self, observer: Arc<dyn LearnObserver>) {
+        self.observer = Some(observer);
+    }
+
+    /// The learner once `run` started it (learning on): reloads and snapshots go through it.
+    pub fn learner(&self) -> Arc<std::sync::OnceLock<Arc<LearnerHandle>>> {
+        self.learner.clone()
     }
 
     pub fn metrics(&self) -> Arc<Metrics> {
@@ -157,6 +217,9 @@ impl Service {
             let listener = TcpListener::bind(&s.admin.bind)
                 .await
                 .map_err(|e| ServiceError::AdminBind { addr: s.admin.bind.clone(), source: e })?;
+            if let Ok(a) = listener.local_addr() {
+                let _ = self.admin_addr.set(a);
+            }
             let addr = listener.local_addr().map(|a| a.to_string()).unwrap_or_default();
             tracing::info!("admin endpoint on http://{addr}");
             let state = AdminState {
@@ -186,6 +249,14 @@ impl Service {
         });
         let shared = Arc::new(AckShared { metrics: self.metrics.clone(), latency_hook: self.latency_hook.clone() });
         let drain_limit = Duration::from_millis(s.service.drain_timeout_ms);
+        let learner = if s.learning.enabled {
+            let l = self.start_learner(tasks, &sink, &shared, retry.clone()).await?;
+            Some(StopOnDrop(l))
+        } else {
+            None
+        };
+        let learner = learner.as_ref().map(|l| &l.0);
+        let resolver = Resolver::from_settings(s, self.metrics.clone()).map(Arc::new);
         let make_pipeline = |tracker: Arc<Tracker>| Pipeline {
             router: self.router.clone(),
             model: self.model.clone(),
@@ -195,6 +266,7 @@ impl Service {
             shared: shared.clone(),
             limit: s.delivery.max_in_flight_per_partition,
             retry: retry.clone(),
+            resolver: resolver.clone(),
         };
 
         match s.source.kind {
@@ -212,7 +284,10 @@ impl Service {
                     .map_err(|e| ServiceError::Kafka { what: "consumer".into(), source: e })?;
                 let consumer = Arc::new(consumer);
                 offsets.attach(&consumer);
-                let topics: Vec<&str> = s.source.topics.iter().map(String::as_str).collect();
+                let mut topics: Vec<&str> = s.source.topics.iter().map(String::as_str).collect();
+                if let Some(r) = &resolver {
+                    topics.push(&r.raw_topic);
+                }
                 consumer
                     .subscribe(&topics)
                     .map_err(|e| ServiceError::Kafka { what: format!("subscribe to {topics:?}"), source: e })?;
@@ -229,7 +304,7 @@ impl Service {
                 });
                 let pipeline = make_pipeline(tracker.clone());
                 let looped = pipeline.run_kafka(&consumer, &shutdown).await;
-                let drained = self.finish(&pipeline, &sink, drain_limit).await;
+                let drained = self.finish(&pipeline, &sink, drain_limit, learner).await;
                 tracker.store_advanced();
                 let tpl = watermarks(&tracker);
                 if tpl.count() > 0 {
@@ -249,7 +324,10 @@ impl Service {
             }
             SourceKind::Stdin | SourceKind::File => {
                 self.readiness.joined.store(true, Ordering::SeqCst);
-                let mut src = if s.source.kind == SourceKind::Stdin {
+                let given = self.source_override.lock().expect("source slot").take();
+                let mut src = if let Some(g) = given {
+                    g
+                } else if s.source.kind == SourceKind::Stdin {
                     LineSource::stdin()
                 } else {
                     LineSource::file(s.source.path.as_ref())
@@ -259,7 +337,7 @@ impl Service {
                 let tracker = Arc::new(Tracker::new(Arc::new(NoOffsets)));
                 let pipeline = make_pipeline(tracker);
                 let looped = pipeline.run_lines(&mut src, &shutdown).await;
-                let drained = self.finish(&pipeline, &sink, drain_limit).await;
+                let drained = self.finish(&pipeline, &sink, drain_limit, learner).await;
                 looped?;
                 Ok(RunReport { records_in: self.metrics.records_in.get(), drained })
             }
@@ -270,8 +348,14 @@ impl Service {
     /// and the file watcher when `reload.watch` is on).
     fn start_reload(&self, tasks: &TaskTracker, stop: &CancellationToken) -> Result<Arc<Reloader>, ServiceError> {
         let s = &self.settings;
-        let model_reloader = self.model_reloader.clone().unwrap_or_else(|| {
-            Arc::new(PublishDirectly { model: self.model.clone(), analyzer: s.analyzer.clone() })
+        // Model reloads go through the learner when it runs (it replays the
+        // label log from the file's offsets before publishing), else straight in.
+        let model_reloader = self.model_reloader.clone().unwrap_or_else(|| -> Arc<dyn ModelReloader> {
+            if s.learning.enabled {
+                Arc::new(ThroughLearner { learner: self.learner.clone(), model: self.model.clone() })
+            } else {
+                Arc::new(PublishDirectly { model: self.model.clone(), analyzer: s.analyzer.clone() })
+            }
         });
         let reloader = Arc::new(Reloader::new(
             Arc::new(s.clone()),
@@ -298,10 +382,15 @@ impl Service {
         Ok(reloader)
     }
 
-    /// Drain in-flight records within the limit, then flush the sink.
-    async fn finish(&self, pipeline: &Pipeline, sink: &Sink, limit: Duration) -> bool {
+    /// Drain in-flight records within the limit, stop the learner (it writes a
+    /// last snapshot and its last dead letters), then flush the sink.
+    async fn finish(&self, pipeline: &Pipeline, sink: &Sink, limit: Duration, learner: Option<&Arc<LearnerHandle>>) -> bool {
         let started = std::time::Instant::now();
         let drained = pipeline.drain(limit).await;
+        if let Some(l) = learner {
+            let l = l.clone();
+            let _ = tokio::task::spawn_blocking(move || l.stop()).await;
+        }
         if !drained {
             self.metrics.drain_timeouts.inc();
             tracing::warn!(
@@ -314,9 +403,67 @@ impl Service {
         drained
     }
 
+    /// Start the learner on the label log (given, a followed file, or the
+    /// learned-label topic) and wait, within the catch-up limit, until it has
+    /// read the log to its end, so the first records are scored with every
+    /// label already in the log.
+    async fn start_learner(
+        &self,
+        tasks: &TaskTracker,
+        sink: &Arc<Sink>,
+        shared: &Arc<AckShared>,
+        retry: Option<tokio::sync::mpsc::UnboundedSender<crate::io::kafka::producer::Failed>>,
+    ) -> Result<Arc<LearnerHandle>, ServiceError> {
+        let s = &self.settings;
+        let given = self.label_log.lock().expect("label log slot").take();
+        let log: Box<dyn LabelLog> = match given {
+            Some(l) => l,
+            None if s.source.kind == SourceKind::Kafka => {
+                let s2 = s.clone();
+                let made = tokio::task::spawn_blocking(move || KafkaLabelLog::new(&s2))
+                    .await
+                    .map_err(|e| ServiceError::Learner(e.to_string()))?;
+                Box::new(made.map_err(|e| match e {
+                    crate::runtime::label_log::LabelLogError::MissingTopic(t) => {
+                        ServiceError::MissingTopic { topic: t, role: "learned-label topic" }
+                    }
+                    other => ServiceError::Learner(other.to_string()),
+                })?)
+            }
+            None if !s.learning.label_path.is_empty() => Box::new(FileLabelLog::new(Path::new(&s.learning.label_path))),
+            None => {
+                return Err(ServiceError::Learner(
+                    "learning.enabled is on but there is no label log: set learning.label_path (stdin/file sources)".into(),
+                ))
+            }
+        };
+        let (dead_tx, dead_rx) = tokio::sync::mpsc::unbounded_channel();
+        tasks.spawn(forward_dead_letters(sink.clone(), dead_rx, shared.clone(), retry));
+        let parts = LearnerParts {
+            start: self.model.current(),
+            log,
+            models: self.model.clone(),
+            metrics: self.metrics.clone(),
+            observer: self.observer.clone(),
+            dead_letters: Some(dead_tx),
+        };
+        let handle = Arc::new(
+            learner::start(parts, LearnerConfig::from_settings(s)).map_err(|e| ServiceError::Learner(e.to_string()))?,
+        );
+        let _ = self.learner.set(handle.clone());
+        let limit = Duration::from_millis(s.learning.catch_up_timeout_ms);
+        if !handle.wait_caught_up(limit).await {
+            tracing::warn!("the label log was not read to its end within {limit:?}; scoring starts meanwhile");
+        }
+        Ok(handle)
+    }
+
     async fn build_sink(&self) -> Result<(Sink, Option<RetryChannel>), ServiceError> {
         let s = &self.settings;
         let flush_each = s.source.kind == SourceKind::Kafka;
+        if let Some(given) = self.sink_override.lock().expect("sink slot").take() {
+            return Ok((given, None));
+        }
         match s.sink.kind {
             SinkKind::Stdout => Ok((Sink::Lines(LineSink::stdout(flush_each)), None)),
             SinkKind::File => {
@@ -357,6 +504,43 @@ impl Service {
                 }
                 Ok((sink, Some((tx, rx))))
             }
+        }
+    }
+}
+
+/// Stops the learner when the run ends on any path (errors included), so its
+/// thread and the dead-letter forwarder it feeds always finish.
+struct StopOnDrop(Arc<LearnerHandle>);
+
+impl Drop for StopOnDrop {
+    fn drop(&mut self) {
+        self.0.stop();
+    }
+}
+
+/// Refused label events from the learner, sent to the dead-letter destination
+/// like any output (counted on acknowledgement, retried on failure). Ends when
+/// the learner drops its sender.
+async fn forward_dead_letters(
+    sink: Arc<Sink>,
+    mut rx: tokio::sync::mpsc::UnboundedReceiver<Outgoing>,
+    shared: Arc<AckShared>,
+    retry: Option<tokio::sync::mpsc::UnboundedSender<crate::io::kafka::producer::Failed>>,
+) {
+    let side = Tracker::new(Arc::new(NoOffsets));
+    let track = side.get("label-dead-letters", 0);
+    let mut n = 0i64;
+    while let Some(out) = rx.recv().await {
+        let ticket = AckTicket::begin(track.clone(), n, None, out.kind.clone(), shared.clone());
+        n += 1;
+        match sink.send(out, ticket).await {
+            Ok(()) => {}
+            Err(crate::io::sink::SendError::Kafka(f)) => {
+                if let Some(tx) = &retry {
+                    let _ = tx.send(f);
+                }
+            }
+            Err(crate::io::sink::SendError::Io(e)) => tracing::error!("cannot write a label dead letter: {e}"),
         }
     }
 }

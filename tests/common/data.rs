@@ -4,7 +4,7 @@ use std::path::{Path, PathBuf};
 
 pub const CLASSES: &[&str] = &["billing", "defects", "returns", "shipping"];
 
-const PHRASES: &[(&str, &[&str])] = &[
+pub const PHRASES: &[(&str, &[&str])] = &[
     ("billing", &["charged twice for my order", "invoice total is wrong", "refund of the card charge", "payment declined at checkout", "gift card balance missing"]),
     ("defects", &["tent pole snapped on first use", "zipper broke on the sleeping bag", "camp stove leaks fuel", "backpack strap tore", "headlamp flickers and dies"]),
     ("returns", &["want to return the hiking boots", "need a return label", "exchange the jacket for a larger size", "send back the unused tent", "return window question"]),
@@ -30,7 +30,7 @@ impl Rng {
     }
 }
 
-fn phrase(class: usize, rng: &mut Rng) -> &'static str {
+pub fn phrase(class: usize, rng: &mut Rng) -> &'static str {
     let p = PHRASES[class].1;
     p[rng.below(p.len() as u64) as usize]
 }

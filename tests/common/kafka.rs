@@ -69,6 +69,37 @@ fn send_one(p: &ThreadedProducer<DefaultProducerContext>, topic: &str, i: &Input
     }
 }
 
+/// Produce `(partition, key, payload)` records to `topic` (the partition chosen by the key
+/// when `None`) and wait for all acks.
+pub fn produce_records(brokers: &str, topic: &str, records: &[(Option<i32>, Option<Vec<u8>>, Vec<u8>)]) {
+    let p = producer(brokers);
+    for (part, key, payload) in records {
+        let mut rec = BaseRecord::to(topic).payload(&payload[..]);
+        if let Some(k) = key {
+            rec = rec.key(&k[..]);
+        }
+        if let Some(n) = part {
+            rec = rec.partition(*n);
+        }
+        loop {
+            match p.send(rec) {
+                Ok(()) => break,
+                Err((_, back)) => {
+                    rec = back;
+                    std::thread::sleep(Duration::from_millis(2));
+                }
+            }
+        }
+    }
+    p.flush(Duration::from_secs(60)).expect("flush records");
+}
+
+/// The sum of the high watermarks of `topic`'s partitions: how many records it holds.
+pub fn topic_size(brokers: &str, topic: &str, partitions: i32) -> i64 {
+    let c: BaseConsumer = ClientConfig::new().set("bootstrap.servers", brokers).create().unwrap();
+    (0..partitions).map(|p| c.fetch_watermarks(topic, p, Duration::from_secs(10)).expect("watermarks").1).sum()
+}
+
 /// Produces inputs at a steady rate on a thread.
 pub struct Feeder {
     pub sent: Arc<AtomicUsize>,

@@ -13,6 +13,12 @@ pub fn consumer_config(s: &Settings) -> ClientConfig {
         c.set(kafka_property_name(k), v);
     }
     c.set("group.id", &s.kafka.group_id);
+    if s.learning.enabled && !s.learning.raw_label_topic.is_empty() {
+        // The range assignor gives partition p of every subscribed topic with the same
+        // partition count to the same member: the raw label topic is co-partitioned
+        // with the input, so a label reaches the replica that scored its record.
+        c.set("partition.assignment.strategy", "range");
+    }
     c.set("enable.auto.offset.store", "false");
     c.set("enable.auto.commit", "true");
     c.set("auto.commit.interval.ms", s.delivery.commit_interval_ms.to_string());
@@ -20,10 +26,31 @@ pub fn consumer_config(s: &Settings) -> ClientConfig {
     c
 }
 
-/// Producer: idempotent (acks=all, ordered retries).
+/// The learned-label reader: partitions assigned by the service itself (no
+/// group membership, nothing committed: positions live in snapshots), with
+/// end-of-partition events so the learner knows when it has caught up.
+pub fn label_consumer_config(s: &Settings) -> ClientConfig {
+    let mut c = base(s);
+    c.set("auto.offset.reset", "earliest");
+    for (k, v) in &s.kafka.consumer_properties {
+        c.set(kafka_property_name(k), v);
+    }
+    c.set("client.id", "sieveline-labels");
+    c.set("group.id", format!("{}.label-reader", s.kafka.group_id));
+    c.set("enable.auto.commit", "false");
+    c.set("enable.auto.offset.store", "false");
+    c.set("enable.partition.eof", "true");
+    c
+}
+
+/// Producer: idempotent (acks=all, ordered retries). Keys are hashed with
+/// murmur2 like the Java clients (librdkafka's default hash differs), so a
+/// label keyed by record id lands where other clients would put it; a
+/// `partitioner` in producer_properties overrides this.
 pub fn producer_config(s: &Settings) -> ClientConfig {
     let mut c = base(s);
     c.set("linger.ms", "5");
+    c.set("partitioner", "murmur2_random");
     for (k, v) in &s.kafka.producer_properties {
         c.set(kafka_property_name(k), v);
     }
@@ -61,6 +88,10 @@ mod tests {
         assert_eq!(c.get("enable.auto.offset.store"), Some("false"));
         let p = producer_config(&s);
         assert_eq!(p.get("enable.idempotence"), Some("true"));
+        assert_eq!(p.get("partitioner"), Some("murmur2_random"));
+        let l = label_consumer_config(&s);
+        assert_eq!(l.get("enable.partition.eof"), Some("true"));
+        assert_eq!(l.get("enable.auto.commit"), Some("false"));
         assert_eq!(p.get("security.protocol"), Some("ssl"));
     }
 }
