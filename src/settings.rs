@@ -424,6 +424,13 @@ impl Settings {
         if !(10..=60_000).contains(&d) {
             return Err(invalid("reload.debounce_ms", d, "an integer from 10 to 60000 (milliseconds)"));
         }
+        if self.reload.watch && !self.snapshot.path.is_empty() && self.snapshot.path == self.service.model {
+            return Err(invalid(
+                "snapshot.path",
+                &self.snapshot.path,
+                "a file other than service.model while reload.watch is on (every snapshot written would be reloaded as a new model file)",
+            ));
+        }
         Ok(())
     }
 
@@ -762,6 +769,18 @@ mod tests {
         assert_eq!(s.input.fields.len(), 3);
         assert_eq!(s.input.fields[0].weight, 2.0);
         assert!(s.analyzer.collapse.numbers);
+    }
+
+    #[test]
+    fn reload_settings_are_checked() {
+        let e = Settings::from_toml_str("[reload]\ndebounce_ms = 0\n").unwrap_err().to_string();
+        assert!(e.contains("reload.debounce_ms"), "{e}");
+        let e = Settings::from_toml_str("[service]\nmodel = \"m.svm\"\n[snapshot]\npath = \"m.svm\"\n").unwrap_err().to_string();
+        assert!(e.contains("snapshot.path") && e.contains("reload.watch"), "{e}");
+        let s = Settings::from_toml_str("[service]\nmodel = \"m.svm\"\n[snapshot]\npath = \"m.svm\"\n[reload]\nwatch = false\n").unwrap();
+        assert!(!s.reload.watch);
+        let e = Settings::from_toml_str("[reload]\nwatch = true\nwatch_dirs = 1\n").unwrap_err().to_string();
+        assert!(e.contains("watch_dirs"), "unknown keys are errors: {e}");
     }
 
     #[test]
