@@ -209,4 +209,67 @@ mod tests {
         assert_eq!(t.topic("lost parcel/äö"), "tickets.routed.lost_parcel___");
         assert_eq!(TopicTemplate::new("all.decisions").topic("x"), "all.decisions");
     }
+
+    fn view(settings: &Settings) -> ModelView {
+        use crate::features::Vocabulary;
+        use crate::model::snapshot::SnapshotMeta;
+        use crate::model::{Model, NbParams};
+        let a = Analyzer::new(&settings.analyzer).unwrap();
+        let voc = Vocabulary::new(settings.model.vocabulary, 1000, 0);
+        let classes = vec!["billing".to_string(), "shipping".to_string()];
+        let mut m = Model::new(NbParams::multinomial(1.0), settings.analyzer.clone(), classes, voc).unwrap();
+        let mut bag = crate::text::TermBag::new();
+        let mut sc = crate::text::AnalyzerScratch::default();
+        for (text, class) in [("charged twice invoice", "billing"), ("parcel late courier", "shipping")] {
+            a.analyze_fields([(text, 1.0)], &mut sc, &mut bag);
+            m.learn(&bag, class, 1.0).unwrap();
+        }
+        let meta = SnapshotMeta::fresh(&m, Some("t".into()));
+        ModelView::new(m, meta, "00".repeat(32), "test".into())
+    }
+
+    fn inbound(payload: &[u8]) -> Inbound<'_> {
+        Inbound { topic: "in", partition: 0, offset: 0, key: None, payload: Some(payload), headers: Vec::new(), timestamp_ms: None }
+    }
+
+    fn header(o: &Outgoing, name: &str) -> String {
+        String::from_utf8(o.header(name).expect(name).to_vec()).unwrap()
+    }
+
+    #[test]
+    fn rules_decide_in_the_router_with_field_scope_and_unmatched_records_go_to_review() {
+        let mut settings = Settings::defaults();
+        settings.rules.blend = crate::settings::BlendMode::RulesOnly;
+        let rules = crate::rules::from_str(
+            "[[rule]]\nid = \"subject-refund\"\nclass = \"returns\"\naction = \"assign\"\n[[rule.when]]\nfield = \"subject\"\nany = [\"refund\"]\n",
+            "inline",
+            &Analyzer::new(&settings.analyzer).unwrap(),
+            &crate::rules::field_names(&settings),
+        )
+        .unwrap();
+        let router = Router::new(&settings).unwrap();
+        let view = view(&settings);
+        let mut s = RouteScratch::default();
+
+        let (out, d) = router.route(&view, Some(&rules), &inbound(br#"{"id":"a","subject":"refund please","body":"x"}"#), &mut s);
+        assert_eq!(d.unwrap().decided_by, crate::decide::DecidedBy::Rule("subject-refund".into()));
+        assert_eq!(header(&out, h::DECIDED_BY), "rule:subject-refund");
+        assert_eq!(header(&out, h::CLASS), "returns", "a class only the rules know");
+        assert_eq!(out.topic, "sieveline.routed.returns");
+
+        // The word in the body only: the rule is scoped to the subject, and in
+        // rules_only nobody else decides.
+        let (out, d) = router.route(&view, Some(&rules), &inbound(br#"{"id":"b","subject":"hello","body":"refund"}"#), &mut s);
+        assert_eq!(d.unwrap().decided_by, crate::decide::DecidedBy::Nobody);
+        assert_eq!(out.topic, "sieveline.review");
+        assert_eq!(header(&out, h::REVIEW_REASON), "unmatched");
+        assert_eq!(header(&out, h::DECIDED_BY), "none");
+
+        // Without rules, under the default blend, the model decides as before.
+        let router = Router::new(&Settings::defaults()).unwrap();
+        let (out, d) = router.route(&view, None, &inbound(br#"{"id":"c","subject":"parcel late"}"#), &mut s);
+        let d = d.unwrap();
+        assert_eq!((d.decided_by, d.class.as_str()), (crate::decide::DecidedBy::Model, "shipping"));
+        assert_eq!(header(&out, h::DECIDED_BY), "model");
+    }
 }
