@@ -44,7 +44,7 @@ fn bench_stream(c: &mut Criterion, s: &Stream) {
             for (i, l) in s.lines.iter().enumerate() {
                 // The pipeline takes this instant for its latency histogram either way.
                 let now = std::hint::black_box(Instant::now());
-                let (out, d) = router.route(&view, &inbound(l, i as i64), &mut scratch);
+                let (out, d) = router.route(&view, None, &inbound(l, i as i64), &mut scratch);
                 std::hint::black_box((out, d, now));
             }
         })
@@ -55,7 +55,7 @@ fn bench_stream(c: &mut Criterion, s: &Stream) {
         b.iter(|| {
             for (i, l) in s.lines.iter().enumerate() {
                 let now = Instant::now();
-                let (out, d) = router.route(&view, &inbound(l, i as i64), &mut scratch);
+                let (out, d) = router.route(&view, None, &inbound(l, i as i64), &mut scratch);
                 if let Some(d) = &d {
                     observer.observe(&view, d, &scratch, now);
                 }
@@ -79,14 +79,14 @@ fn pass(s: &Stream, router: &Router, view: &Arc<ModelView>, scratch: &mut RouteS
         None => {
             for (i, l) in s.lines.iter().enumerate() {
                 let now = std::hint::black_box(Instant::now());
-                let r = router.route(view, &inbound(l, i as i64), scratch);
+                let r = router.route(view, None, &inbound(l, i as i64), scratch);
                 std::hint::black_box((r, now));
             }
         }
         Some(o) => {
             for (i, l) in s.lines.iter().enumerate() {
                 let now = Instant::now();
-                let (out, d) = router.route(view, &inbound(l, i as i64), scratch);
+                let (out, d) = router.route(view, None, &inbound(l, i as i64), scratch);
                 if let Some(d) = &d {
                     o.observe(view, d, scratch, now);
                 }

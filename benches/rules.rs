@@ -8,111 +8,21 @@
 //!
 //! Run: `SIEVELINE_DATA_DIR=../shared/data cargo bench --bench rules`.
 
-use std::collections::HashMap;
-use std::path::{Path, PathBuf};
+#[path = "support/rules_gen.rs"]
+mod rules_gen;
+use rules_gen::{setup, Setup};
+
+use std::hint::black_box;
+use std::time::Instant;
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use sieveline::decide::{decide_by_model, DecideScratch, DecideWork, Decider, ReviewPolicy};
-use sieveline::eval::folds::SplitMix64;
-use sieveline::features::Vocabulary;
-use sieveline::model::{Model, NbParams};
-use sieveline::rules::{self, BlendScratch, FieldText, RecordTerms, RuleSet};
-use sieveline::settings::{BlendMode, Settings};
-use sieveline::text::{Analyzer, AnalyzerScratch, TermBag};
-
-fn data_dir() -> PathBuf {
-    let dir = std::env::var_os("SIEVELINE_DATA_DIR")
-        .map(PathBuf::from)
-        .unwrap_or_else(|| Path::new(env!("CARGO_MANIFEST_DIR")).join("../shared/data"));
-    let b = dir.join("banking77");
-    assert!(b.join("train.csv").is_file(), "Banking77 is missing at {} (set SIEVELINE_DATA_DIR)", b.display());
-    b
-}
-
-fn read(path: &Path) -> Vec<(String, String)> {
-    let mut r = csv::Reader::from_path(path).unwrap();
-    r.records().map(|x| x.unwrap()).map(|x| (x[0].to_string(), x[1].to_string())).collect()
-}
-
-/// 200 rules over frequent training terms; seeded, so every run loads the same set.
-pub fn generated_rules(terms: &[String], classes: &[String], n: usize, seed: u64) -> String {
-    let mut rng = SplitMix64::new(seed);
-    let mut pick = |k: usize| -> Vec<String> {
-        let mut out: Vec<String> = Vec::new();
-        while out.len() < k {
-            let t = &terms[rng.below(terms.len() as u64) as usize];
-            if !out.contains(t) {
-                out.push(t.clone());
-            }
-        }
-        out
-    };
-    let list = |v: &[String]| v.iter().map(|t| format!("{t:?}")).collect::<Vec<_>>().join(", ");
-    let mut s = String::new();
-    for i in 0..n {
-        let class = &classes[i % classes.len()];
-        let (action, extra) = match i % 10 {
-            0..=5 => ("assign", String::new()),
-            6..=8 => ("boost", format!("log_odds = {:.1}\n", 0.5 + (i % 7) as f64 * 0.5)),
-            _ => ("review", String::new()),
-        };
-        s += &format!(
-            "[[rule]]\nid = \"gen-{i}\"\nclass = \"{class}\"\naction = \"{action}\"\n{extra}priority = {}\n",
-            i % 5
-        );
-        let any = pick(2 + i % 4);
-        s += &format!("[[rule.when]]\nany = [{}]\n", list(&any));
-        if i % 4 == 0 {
-            s += &format!("[[rule.when]]\nall = [{}]\n", list(&pick(2)));
-        }
-        if i % 5 == 0 {
-            s += &format!("[[rule.when]]\nnone = [{}]\n", list(&pick(2)));
-        }
-        if i % 20 == 0 {
-            let t = &pick(1)[0];
-            s += &format!("[[rule.when]]\nregex = '(?i)\\b{}\\w*\\b'\n", regex_escape(t));
-        }
-    }
-    s
-}
-
-fn regex_escape(t: &str) -> String {
-    t.chars().map(|c| if c.is_alphanumeric() { c.to_string() } else { format!("\\{c}") }).collect()
-}
+use sieveline::rules::{BlendScratch, FieldText, RecordTerms, RuleSet};
+use sieveline::settings::BlendMode;
+use sieveline::text::{AnalyzerScratch, TermBag};
 
 fn bench(c: &mut Criterion) {
-    let dir = data_dir();
-    let train = read(&dir.join("train.csv"));
-    let test = read(&dir.join("test.csv"));
-    let settings = Settings::defaults();
-    let analyzer = Analyzer::new(&settings.analyzer).unwrap();
-    let mut classes: Vec<String> = train.iter().map(|(_, c)| c.clone()).collect();
-    classes.sort();
-    classes.dedup();
-    let mut model = Model::new(
-        NbParams::multinomial(1.0),
-        settings.analyzer.clone(),
-        classes.clone(),
-        Vocabulary::new(settings.model.vocabulary, settings.model.max_vocabulary, settings.model.hash_buckets),
-    )
-    .unwrap();
-    let mut bag = TermBag::new();
-    let mut asc = AnalyzerScratch::default();
-    let mut freq: HashMap<String, usize> = HashMap::new();
-    for (text, class) in &train {
-        analyzer.analyze_fields([(text.as_str(), 1.0)], &mut asc, &mut bag);
-        for (t, _) in bag.iter() {
-            *freq.entry(t.to_string()).or_default() += 1;
-        }
-        model.learn(&bag, class, 1.0).unwrap();
-    }
-    // Frequent plain words (class tokens excluded): rules that really fire.
-    let mut terms: Vec<(String, usize)> = freq.into_iter().filter(|(t, _)| !t.starts_with('<')).collect();
-    terms.sort_by(|a, b| b.1.cmp(&a.1).then(a.0.cmp(&b.0)));
-    let terms: Vec<String> = terms.into_iter().take(600).map(|(t, _)| t).collect();
-    let text = generated_rules(&terms, &classes, 200, 7);
-    let set: RuleSet = rules::from_str(&text, "generated-200", &analyzer, &["text".into()]).unwrap();
-    assert_eq!(set.len(), 200);
+    let Setup { test, settings, analyzer, model, set } = setup();
     let policy = ReviewPolicy::from_settings(&settings.review);
     let decider = Decider { blend: BlendMode::ModelFirst, ..Decider::from_settings(&settings) };
     let n = test.len() as u64;
@@ -131,33 +41,72 @@ fn bench(c: &mut Criterion) {
         fired as f64 / n as f64
     );
 
+    // One pass over the test file each way; the criterion benches and the
+    // paired measurement below run exactly these.
+    let model_pass = |asc: &mut AnalyzerScratch, bag: &mut TermBag, ds: &mut DecideScratch| {
+        let mut k = 0usize;
+        for (t, _) in &test {
+            analyzer.analyze_fields([(t.as_str(), 1.0)], asc, bag);
+            let (d, _) = decide_by_model(&model, "v", None, bag, &policy, 3, ds);
+            k += d.class.len();
+        }
+        k
+    };
+    let blend_pass = |rules: Option<&RuleSet>, s: &mut BlendScratch| {
+        let mut k = 0usize;
+        for (t, _) in &test {
+            let f = [FieldText { field: 0, text: t, weight: 1.0 }];
+            let d = decider.decide(&analyzer, rules, Some(&model), "v", None, &f, s);
+            k += d.class.len();
+        }
+        k
+    };
+
+    // Paired: the two passes alternate, so a change in machine load hits both
+    // alike (criterion below measures one after the other).
+    {
+        let (mut asc, mut bag, mut ds, mut s) =
+            (AnalyzerScratch::default(), TermBag::new(), DecideScratch::default(), BlendScratch::default());
+        let (mut a, mut b) = (Vec::new(), Vec::new());
+        for round in 0..41 {
+            let t = Instant::now();
+            black_box(model_pass(&mut asc, &mut bag, &mut ds));
+            let ta = t.elapsed().as_secs_f64();
+            let t = Instant::now();
+            black_box(blend_pass(Some(&set), &mut s));
+            let tb = t.elapsed().as_secs_f64();
+            if round > 0 {
+                a.push(ta);
+                b.push(tb);
+            }
+        }
+        let median = |v: &mut Vec<f64>| {
+            v.sort_by(f64::total_cmp);
+            v[v.len() / 2]
+        };
+        let (ma, mb) = (median(&mut a), median(&mut b));
+        eprintln!(
+            "paired, 40 alternating passes: model only {:.2} ms, 200 rules {:.2} ms per pass; rules/model throughput {:.3}",
+            ma * 1e3,
+            mb * 1e3,
+            ma / mb
+        );
+    }
+
     let mut g = c.benchmark_group("rules");
     g.throughput(Throughput::Elements(n));
     g.bench_function("analyze+decide/model_only", |b| {
-        let mut asc = AnalyzerScratch::default();
-        let mut bag = TermBag::new();
-        let mut ds = DecideScratch::default();
-        b.iter(|| {
-            let mut k = 0usize;
-            for (t, _) in &test {
-                analyzer.analyze_fields([(t.as_str(), 1.0)], &mut asc, &mut bag);
-                let (d, _) = decide_by_model(&model, "v", None, &bag, &policy, 3, &mut ds);
-                k += d.class.len();
-            }
-            k
-        })
+        let (mut asc, mut bag, mut ds) = (AnalyzerScratch::default(), TermBag::new(), DecideScratch::default());
+        b.iter(|| model_pass(&mut asc, &mut bag, &mut ds))
+    });
+    // The service's path with no rules file: the same decider, no rule set.
+    g.bench_function("analyze+decide/model_only_via_decider", |b| {
+        let mut s = BlendScratch::default();
+        b.iter(|| blend_pass(None, &mut s))
     });
     g.bench_function("analyze+decide/200_rules_model_first", |b| {
         let mut s = BlendScratch::default();
-        b.iter(|| {
-            let mut k = 0usize;
-            for (t, _) in &test {
-                let f = [FieldText { field: 0, text: t, weight: 1.0 }];
-                let d = decider.decide(&analyzer, Some(&set), Some(&model), "v", None, &f, &mut s);
-                k += d.class.len();
-            }
-            k
-        })
+        b.iter(|| blend_pass(Some(&set), &mut s))
     });
     // The same without analysis: records analyzed once up front, so the rules' share is not diluted.
     let pre: Vec<RecordTerms> = test

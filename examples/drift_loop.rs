@@ -28,7 +28,7 @@ fn main() {
         for _ in 0..passes {
             for (i, l) in s.lines.iter().enumerate() {
                 let now = Instant::now();
-                let (out, d) = router.route(&view, &drift_data::inbound(l, i as i64), &mut scratch);
+                let (out, d) = router.route(&view, None, &drift_data::inbound(l, i as i64), &mut scratch);
                 if let (true, Some(d)) = (mode == "on", &d) {
                     observer.observe(&view, d, &scratch, now);
                 }

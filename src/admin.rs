@@ -1,4 +1,4 @@
-//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` (model-info JSON), `/assignment` (owned partitions), `POST /classify`, and the status page `/` with its data `/status.json`; a bearer token guards all but metrics and health.
+//! The admin HTTP endpoint (axum): `/metrics` (Prometheus text), `/healthz`, `/readyz`, `/model` and `/rules` (what is served, JSON), `/assignment` (owned partitions), `POST /classify`, `POST /reload`, and the status page `/` with its data `/status.json`; a bearer token guards all but metrics and health.
 
 use std::sync::Arc;
 
@@ -17,7 +17,9 @@ use crate::io::message::Inbound;
 use crate::metrics::Metrics;
 use crate::runtime::model_view::ModelHandle;
 use crate::runtime::monitor::DriftMonitor;
+use crate::runtime::reload::{Reloader, Trigger, What};
 use crate::runtime::router::{RouteScratch, Router};
+use crate::runtime::rules_view::RulesHandle;
 use crate::runtime::Readiness;
 
 /// Route paths, shared with the deploy manifests' consistency test.
@@ -35,6 +37,9 @@ const MAX_CLASSIFY_BODY: usize = 1 << 20;
 pub struct AdminState {
     pub metrics: Arc<Metrics>,
     pub model: ModelHandle,
+    pub rules: RulesHandle,
+    /// `POST /reload` answers 503 without one.
+    pub reloader: Option<Arc<Reloader>>,
     pub router: Arc<Router>,
     pub readiness: Arc<Readiness>,
     /// Required as `Authorization: Bearer <token>` on guarded routes when set.
@@ -49,7 +54,9 @@ pub struct AdminState {
 pub fn routes(state: AdminState) -> HttpRouter {
     let mut guarded = HttpRouter::new()
         .route(PATH_MODEL, get(model_info))
+        .route("/rules", get(rules_info))
         .route(PATH_CLASSIFY, post(classify))
+        .route("/reload", post(reload))
         .route(PATH_ASSIGNMENT, get(assignment));
     if state.status_page && state.drift.is_some() {
         guarded = guarded
@@ -125,9 +132,37 @@ async fn model_info(State(st): State<AdminState>, Query(q): Query<std::collectio
     Json(info).into_response()
 }
 
+/// The served rules file, or `null` without one.
+async fn rules_info(State(st): State<AdminState>) -> Response {
+    Json(st.rules.current().map(|r| r.info())).into_response()
+}
+
+#[derive(serde::Deserialize)]
+struct ReloadQuery {
+    what: Option<String>,
+}
+
+/// Reload the model and/or the rules now (`?what=model|rules|both`, default
+/// both) and answer what happened: 200 when everything asked for is served,
+/// 422 when a file was refused (the old one keeps serving), 400 for an
+/// unknown `what`.
+async fn reload(State(st): State<AdminState>, Query(q): Query<ReloadQuery>) -> Response {
+    let what = match What::parse(q.what.as_deref()) {
+        Ok(w) => w,
+        Err(e) => return (StatusCode::BAD_REQUEST, Json(serde_json::json!({ "error": e }))).into_response(),
+    };
+    let Some(reloader) = &st.reloader else {
+        return (StatusCode::SERVICE_UNAVAILABLE, "reload is not available\n").into_response();
+    };
+    let report = reloader.reload(what, Trigger::Admin).await;
+    let status = if report.succeeded(what) { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
+    (status, Json(report)).into_response()
+}
+
 /// The body is one record in the source codec; the answer is the output line the service would write.
 async fn classify(State(st): State<AdminState>, body: Bytes) -> Response {
     let view = st.model.current();
+    let rules = st.rules.current();
     let rec = Inbound {
         topic: "admin",
         partition: 0,
@@ -138,7 +173,7 @@ async fn classify(State(st): State<AdminState>, body: Bytes) -> Response {
         timestamp_ms: None,
     };
     let mut scratch = RouteScratch::default();
-    let (out, decision) = st.router.route(&view, &rec, &mut scratch);
+    let (out, decision) = st.router.route(&view, rules.as_deref().map(|r| &r.set), &rec, &mut scratch);
     let status = if decision.is_some() { StatusCode::OK } else { StatusCode::UNPROCESSABLE_ENTITY };
     (status, [(header::CONTENT_TYPE, "application/json")], render_line(&out)).into_response()
 }

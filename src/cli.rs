@@ -365,6 +365,9 @@ pub struct RunArgs {
     /// Read records from this file instead of the configured source (sets source.kind = "file").
     #[arg(long, short)]
     pub input: Option<PathBuf>,
+    /// Rules file to decide with, beside the model (overrides rules.path).
+    #[arg(long)]
+    pub rules: Option<PathBuf>,
 }
 
 #[derive(Debug, Args)]

@@ -1,12 +1,18 @@
 //! Every metric of the service: names as constants (units in the names), bounded labels, one registry rendered as Prometheus text.
 //!
 //! Label values are bounded: `class` takes the model's classes, `reason` the
-//! fixed dead-letter reasons, `kind` a fixed set. Record content never becomes
-//! a label.
+//! fixed dead-letter reasons, `kind` a fixed set, `by` model/rule/none, `rule`
+//! the ids of the loaded rules file (series of rules no longer loaded are
+//! removed at reload), `target` model/rules and `result` ok/refused. Record
+//! content never becomes a label.
+
+use std::sync::Mutex;
 
 use prometheus::{
     Encoder, Gauge, GaugeVec, Histogram, HistogramOpts, IntCounter, IntCounterVec, IntGauge, Opts, Registry, TextEncoder,
 };
+
+use crate::decide::DecidedBy;
 
 pub const RECORDS_IN: &str = "sieveline_records_in_total";
 pub const RECORDS_OUT: &str = "sieveline_records_out_total";
@@ -24,6 +30,11 @@ pub const DRAIN_TIMEOUTS: &str = "sieveline_drain_timeouts_total";
 pub const CONSUMER_ERRORS: &str = "sieveline_consumer_errors_total";
 pub const MODEL_CLASSES: &str = "sieveline_model_classes";
 pub const REBALANCES: &str = "sieveline_rebalances_total";
+pub const DECIDED_BY: &str = "sieveline_decided_by_total";
+pub const RULE_DECISIONS: &str = "sieveline_rule_decisions_total";
+pub const RULES_LOADED: &str = "sieveline_rules_loaded";
+pub const RELOADS: &str = "sieveline_reloads_total";
+pub const LAST_RELOAD: &str = "sieveline_last_reload_timestamp_seconds";
 
 // Online learning (docs/learning.md).
 pub const LABELS_READ: &str = "sieveline_labels_read_total";
@@ -68,12 +79,18 @@ pub const CONSUMER_LAG: &str = "sieveline_consumer_lag_records";
 pub const LABEL_REASON: &str = "reason";
 /// Label of [`DECISIONS`].
 pub const LABEL_CLASS: &str = "class";
-/// Label of [`OFFSET_COMMITS`]: `ok` or `error`.
+/// Label of [`OFFSET_COMMITS`]: `ok` or `error`; of [`RELOADS`]: `ok` or `refused`.
 pub const LABEL_RESULT: &str = "result";
 /// Label of [`REBALANCES`]: `assign` or `revoke`.
 pub const LABEL_KIND: &str = "kind";
 /// Label of [`DRIFT_CLASS_SHARE`]: `window` or `reference`.
 pub const LABEL_MIX: &str = "mix";
+/// Label of [`DECIDED_BY`]: `model`, `rule` or `none`.
+pub const LABEL_BY: &str = "by";
+/// Label of [`RULE_DECISIONS`]: a rule id of the loaded rules file.
+pub const LABEL_RULE: &str = "rule";
+/// Label of [`RELOADS`] and [`LAST_RELOAD`]: `model` or `rules`.
+pub const LABEL_TARGET: &str = "target";
 
 /// The service's metrics, registered in their own registry.
 #[derive(Clone)]
@@ -94,6 +111,15 @@ pub struct Metrics {
     pub drain_timeouts: IntCounter,
     pub consumer_errors: IntCounter,
     pub model_classes: IntGauge,
+    pub decided_by_model: IntCounter,
+    pub decided_by_rule: IntCounter,
+    pub decided_by_none: IntCounter,
+    pub rule_decisions: IntCounterVec,
+    pub rules_loaded: IntGauge,
+    pub reloads: IntCounterVec,
+    pub last_reload: GaugeVec,
+    /// Rule ids that have a `rule_decisions` series (the loaded set's).
+    rule_series: std::sync::Arc<Mutex<Vec<String>>>,
     pub labels_read: IntCounter,
     pub labels_learned: IntCounter,
     pub label_corrections: IntCounter,
@@ -136,6 +162,27 @@ impl Metrics {
             registry.register(Box::new(h.clone())).expect("unique metric");
             h
         };
+        let by = IntCounterVec::new(
+            Opts::new(DECIDED_BY, "Decisions made (routed or sent to review), by who decided: model, rule or none."),
+            &[LABEL_BY],
+        )
+        .expect("valid counter");
+        registry.register(Box::new(by.clone())).expect("unique metric");
+        let reloads = IntCounterVec::new(
+            Opts::new(RELOADS, "Reloads of the model or the rules, by result (refused: the old one kept serving)."),
+            &[LABEL_TARGET, LABEL_RESULT],
+        )
+        .expect("valid counter");
+        registry.register(Box::new(reloads.clone())).expect("unique metric");
+        for target in ["model", "rules"] {
+            for result in ["ok", "refused"] {
+                reloads.with_label_values(&[target, result]);
+            }
+        }
+        let last_reload =
+            GaugeVec::new(Opts::new(LAST_RELOAD, "Unix time of the last successful reload, by target."), &[LABEL_TARGET])
+                .expect("valid gauge");
+        registry.register(Box::new(last_reload.clone())).expect("unique metric");
         Metrics {
             records_in: counter(RECORDS_IN, "Records read from the source."),
             records_out: counter(RECORDS_OUT, "Decisions acknowledged by the sink at their class destination."),
@@ -164,6 +211,18 @@ impl Metrics {
             drain_timeouts: counter(DRAIN_TIMEOUTS, "Drains (revoke or shutdown) that hit their time limit with records in flight."),
             consumer_errors: counter(CONSUMER_ERRORS, "Errors reported by the Kafka consumer (the client retries by itself)."),
             model_classes: gauge(MODEL_CLASSES, "Classes of the model being served."),
+            decided_by_model: by.with_label_values(&["model"]),
+            decided_by_rule: by.with_label_values(&["rule"]),
+            decided_by_none: by.with_label_values(&["none"]),
+            rule_decisions: counter_vec(
+                RULE_DECISIONS,
+                "Decisions made by each rule of the loaded rules file (counted when decided).",
+                LABEL_RULE,
+            ),
+            rules_loaded: gauge(RULES_LOADED, "Rules in the rules file being served (0 without one)."),
+            reloads,
+            last_reload,
+            rule_series: Default::default(),
             labels_read: counter(LABELS_READ, "Label events read from the learned-label log (every replica reads all of them)."),
             labels_learned: counter(LABELS_LEARNED, "Label events folded into the model, corrections included."),
             label_corrections: counter(LABEL_CORRECTIONS, "Label events that replaced an earlier label of the same record."),
@@ -190,6 +249,43 @@ impl Metrics {
             rebalances: counter_vec(REBALANCES, "Consumer group rebalance events of this replica, by kind (assign, revoke).", LABEL_KIND),
             drift: DriftMetrics::register(&registry),
             registry,
+        }
+    }
+
+    /// Count one decision by who made it.
+    pub fn count_decided_by(&self, by: &DecidedBy) {
+        match by {
+            DecidedBy::Model => self.decided_by_model.inc(),
+            DecidedBy::Rule(id) => {
+                self.decided_by_rule.inc();
+                self.rule_decisions.with_label_values(&[id.as_str()]).inc();
+            }
+            DecidedBy::Nobody => self.decided_by_none.inc(),
+        }
+    }
+
+    /// A rules set was published: its rule count, and `rule_decisions` series
+    /// for exactly its ids (new ones at 0, those of rules no longer loaded removed).
+    pub fn rules_published<'a>(&self, ids: impl IntoIterator<Item = &'a str>) {
+        let ids: Vec<String> = ids.into_iter().map(str::to_string).collect();
+        let keep: std::collections::HashSet<&str> = ids.iter().map(String::as_str).collect();
+        let mut series = self.rule_series.lock().unwrap_or_else(|e| e.into_inner());
+        for old in series.iter().filter(|o| !keep.contains(o.as_str())) {
+            let _ = self.rule_decisions.remove_label_values(&[old.as_str()]);
+        }
+        for id in &ids {
+            self.rule_decisions.with_label_values(&[id.as_str()]);
+        }
+        self.rules_loaded.set(ids.len() as i64);
+        *series = ids;
+    }
+
+    /// Count a reload of `target` (`model` or `rules`); `ok` also sets its timestamp.
+    pub fn reloaded(&self, target: &str, ok: bool) {
+        self.reloads.with_label_values(&[target, if ok { "ok" } else { "refused" }]).inc();
+        if ok {
+            let now = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0.0, |d| d.as_secs_f64());
+            self.last_reload.with_label_values(&[target]).set(now);
         }
     }
 
@@ -348,5 +444,46 @@ mod tests {
         assert!(text.contains(r#"sieveline_records_dead_lettered_total{reason="bad json"} 1"#), "{text}");
         assert!(text.contains(r#"sieveline_decisions_total{class="billing"} 2"#), "{text}");
         assert!(text.contains("sieveline_scoring_latency_seconds_bucket"), "{text}");
+    }
+
+    #[test]
+    fn decided_by_and_rule_series_follow_the_loaded_rules() {
+        let m = Metrics::new();
+        m.rules_published(["refund-words", "hazard-guard"]);
+        m.count_decided_by(&DecidedBy::Model);
+        m.count_decided_by(&DecidedBy::Rule("refund-words".into()));
+        m.count_decided_by(&DecidedBy::Nobody);
+        let text = m.render();
+        assert!(text.contains(r#"sieveline_decided_by_total{by="model"} 1"#), "{text}");
+        assert!(text.contains(r#"sieveline_decided_by_total{by="rule"} 1"#), "{text}");
+        assert!(text.contains(r#"sieveline_decided_by_total{by="none"} 1"#), "{text}");
+        assert!(text.contains(r#"sieveline_rule_decisions_total{rule="refund-words"} 1"#), "{text}");
+        assert!(text.contains(r#"sieveline_rule_decisions_total{rule="hazard-guard"} 0"#), "{text}");
+        assert!(text.contains("sieveline_rules_loaded 2"), "{text}");
+        // A reload to a set without the hazard guard drops its series.
+        m.rules_published(["refund-words", "late-parcel"]);
+        let text = m.render();
+        assert!(!text.contains("hazard-guard"), "{text}");
+        assert!(text.contains(r#"sieveline_rule_decisions_total{rule="late-parcel"} 0"#), "{text}");
+        assert!(text.contains(r#"sieveline_rule_decisions_total{rule="refund-words"} 1"#), "{text}");
+    }
+
+    #[test]
+    fn reloads_count_by_target_and_result_and_stamp_successes() {
+        let m = Metrics::new();
+        let text = m.render();
+        assert!(text.contains(r#"sieveline_reloads_total{result="refused",target="rules"} 0"#), "{text}");
+        m.reloaded("rules", false);
+        m.reloaded("model", true);
+        let text = m.render();
+        assert!(text.contains(r#"sieveline_reloads_total{result="refused",target="rules"} 1"#), "{text}");
+        assert!(text.contains(r#"sieveline_reloads_total{result="ok",target="model"} 1"#), "{text}");
+        assert!(!text.contains(r#"sieveline_last_reload_timestamp_seconds{target="rules"}"#), "{text}");
+        let stamp = text
+            .lines()
+            .find(|l| l.starts_with(r#"sieveline_last_reload_timestamp_seconds{target="model"}"#))
+            .and_then(|l| l.rsplit(' ').next()?.parse::<f64>().ok())
+            .expect("model reload timestamp");
+        assert!(stamp > 1.7e9, "{stamp}");
     }
 }

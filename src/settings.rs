@@ -45,6 +45,7 @@ pub struct Settings {
     pub dead_letter: DeadLetterSettings,
     pub delivery: DeliverySettings,
     pub admin: AdminSettings,
+    pub reload: ReloadSettings,
     pub learning: LearningSettings,
     pub snapshot: SnapshotSettings,
     pub drift: DriftSettings,
@@ -314,6 +315,16 @@ pub struct RulesSettings {
     pub assign_boost: f64,
 }
 
+/// Hot reload of the model and rules files in the service.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ReloadSettings {
+    /// Watch the model and rules files and reload on change.
+    pub watch: bool,
+    /// Quiet time after the last change to a file before it is reloaded.
+    pub debounce_ms: u64,
+}
+
 choice_enum!(
     /// What the learner does with a label for a class the model does not have.
     UnknownClasses { Reject => "reject", Add => "add" }
@@ -410,6 +421,21 @@ impl Settings {
 }
 
 impl Settings {
+    fn validate_reload(&self) -> Result<(), SettingsError> {
+        let d = self.reload.debounce_ms;
+        if !(10..=60_000).contains(&d) {
+            return Err(invalid("reload.debounce_ms", d, "an integer from 10 to 60000 (milliseconds)"));
+        }
+        if self.reload.watch && !self.snapshot.path.is_empty() && self.snapshot.path == self.service.model {
+            return Err(invalid(
+                "snapshot.path",
+                &self.snapshot.path,
+                "a file other than service.model while reload.watch is on (every snapshot written would be reloaded as a new model file)",
+            ));
+        }
+        Ok(())
+    }
+
     fn validate_rules(&self) -> Result<(), SettingsError> {
         let r = &self.rules;
         if r.takeover_labels == 0 || r.takeover_labels > 1_000_000_000 {
@@ -725,6 +751,7 @@ impl Settings {
     /// Check every value once; the error names the key, the value and what is allowed.
     pub fn validate(&self) -> Result<(), SettingsError> {
         self.validate_rules()?;
+        self.validate_reload()?;
         self.validate_learning()?;
         self.validate_drift()?;
         let a = &self.analyzer;
@@ -970,6 +997,18 @@ mod tests {
         assert_eq!(s.input.fields.len(), 3);
         assert_eq!(s.input.fields[0].weight, 2.0);
         assert!(s.analyzer.collapse.numbers);
+    }
+
+    #[test]
+    fn reload_settings_are_checked() {
+        let e = Settings::from_toml_str("[reload]\ndebounce_ms = 0\n").unwrap_err().to_string();
+        assert!(e.contains("reload.debounce_ms"), "{e}");
+        let e = Settings::from_toml_str("[service]\nmodel = \"m.svm\"\n[snapshot]\npath = \"m.svm\"\n").unwrap_err().to_string();
+        assert!(e.contains("snapshot.path") && e.contains("reload.watch"), "{e}");
+        let s = Settings::from_toml_str("[service]\nmodel = \"m.svm\"\n[snapshot]\npath = \"m.svm\"\n[reload]\nwatch = false\n").unwrap();
+        assert!(!s.reload.watch);
+        let e = Settings::from_toml_str("[reload]\nwatch = true\nwatch_dirs = 1\n").unwrap_err().to_string();
+        assert!(e.contains("watch_dirs"), "unknown keys are errors: {e}");
     }
 
     #[test]

@@ -214,7 +214,7 @@ fn mean_decision_bytes(s: &Settings, sample: &[Vec<u8>]) -> Result<usize> {
     let mut total = 0usize;
     for (i, line) in sample.iter().enumerate() {
         let rec = Inbound { topic: "bench", partition: 0, offset: i as i64, key: None, payload: Some(line), headers: Vec::new(), timestamp_ms: None };
-        total += router.route(&view, &rec, &mut scratch).0.payload.len();
+        total += router.route(&view, None, &rec, &mut scratch).0.payload.len();
     }
     Ok(total / sample.len().max(1))
 }

@@ -12,6 +12,9 @@ pub fn run(mut settings: Settings, args: &RunArgs) -> Result<()> {
     if let Some(m) = &args.model {
         settings.service.model = m.display().to_string();
     }
+    if let Some(r) = &args.rules {
+        settings.rules.path = r.display().to_string();
+    }
     if let Some(i) = &args.input {
         settings.source.kind = SourceKind::File;
         settings.source.path = i.display().to_string();
@@ -33,7 +36,7 @@ pub fn run(mut settings: Settings, args: &RunArgs) -> Result<()> {
 /// Exit codes for service errors that are the operator's to fix (2), else `None`.
 pub fn exit_code_of(e: &(dyn std::error::Error + 'static)) -> Option<u8> {
     match e.downcast_ref::<ServiceError>()? {
-        ServiceError::NoModel | ServiceError::MissingTopic { .. } => Some(2),
+        ServiceError::NoModel | ServiceError::MissingTopic { .. } | ServiceError::Rules(_) => Some(2),
         _ => None,
     }
 }

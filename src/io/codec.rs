@@ -30,6 +30,9 @@ impl DecodeError {
 pub struct Decoded {
     pub id: Option<String>,
     pub fields: Vec<(String, f64)>,
+    /// Beside `fields`: each field's index in `input.fields` (what a rule's
+    /// `field = ...` scope refers to). A text line is field 0.
+    pub slots: Vec<usize>,
 }
 
 /// A codec built once from settings.
@@ -59,6 +62,7 @@ impl Codec {
     pub fn decode(&self, bytes: Option<&[u8]>, out: &mut Decoded) -> Result<(), DecodeError> {
         out.id = None;
         out.fields.clear();
+        out.slots.clear();
         let bytes = bytes.ok_or(DecodeError::MissingText)?;
         if bytes.len() > self.max_bytes {
             return Err(DecodeError::Oversize);
@@ -71,6 +75,7 @@ impl Codec {
                     return Err(DecodeError::MissingText);
                 }
                 out.fields.push((line.to_string(), 1.0));
+                out.slots.push(0);
                 Ok(())
             }
             CodecKind::Json => {
@@ -78,10 +83,11 @@ impl Codec {
                 if !v.is_object() {
                     return Err(DecodeError::BadJson);
                 }
-                for f in &self.fields {
+                for (i, f) in self.fields.iter().enumerate() {
                     if let Some(t) = json_path(&v, &f.name).and_then(field_text) {
                         if !t.trim().is_empty() {
                             out.fields.push((t.into_owned(), f.weight));
+                            out.slots.push(i);
                         }
                     }
                 }
@@ -112,6 +118,9 @@ mod tests {
         codec(CodecKind::Json).decode(Some(br#"{"id":7,"subject":"Tent pole","body":"snapped"}"#), &mut d).unwrap();
         assert_eq!(d.id.as_deref(), Some("7"));
         assert_eq!(d.fields, vec![("Tent pole".to_string(), 2.0), ("snapped".to_string(), 1.0)]);
+        assert_eq!(d.slots, [0, 1], "subject and body are input.fields 0 and 1");
+        codec(CodecKind::Json).decode(Some(br#"{"id":8,"body":"only a body","text":"and text"}"#), &mut d).unwrap();
+        assert_eq!(d.slots, [1, 2], "a missing field leaves no slot");
     }
 
     #[test]
@@ -134,6 +143,7 @@ mod tests {
         let mut d = Decoded::default();
         c.decode(Some(b"disk full on node-3\n"), &mut d).unwrap();
         assert_eq!(d.fields, vec![("disk full on node-3".to_string(), 1.0)]);
+        assert_eq!(d.slots, [0]);
         assert_eq!(c.decode(Some(b"  \n"), &mut d), Err(DecodeError::MissingText));
     }
 }

@@ -16,7 +16,7 @@
 //! model; when boosts change the model's winner, it names the boost rule.
 
 use crate::decide::{DecidedBy, Decision, ReviewPolicy, ReviewReason};
-use crate::model::score::{log_sum_exp, top_two};
+use crate::model::score::log_sum_exp;
 use crate::model::{Model, ScoreScratch, Scored};
 use crate::settings::{BlendMode, Settings};
 use crate::text::{Analyzer, AnalyzerScratch};
@@ -55,8 +55,11 @@ pub struct DecideWork {
     class_map: Vec<u32>,
     /// The fired rules of the last record, resolved, in precedence order.
     pub fired: Vec<Fired>,
-    /// Summed boost per boosted model class.
-    deltas: Vec<(usize, f64)>,
+    /// Per boosted model class: the summed boost and its exponential.
+    deltas: Vec<Delta>,
+    /// The model's own score of the last record (before boosts), when the model
+    /// scored it; `score.hits` then holds the rows it found (drift statistics).
+    pub model_scored: Option<Scored>,
 }
 
 impl Decider {
@@ -101,18 +104,41 @@ impl Decider {
         w: &mut DecideWork,
     ) -> Decision {
         let usable = model.filter(|m| !m.is_empty());
-        let DecideWork { rules: ms, score, class_map, fired: info, deltas } = w;
+        let DecideWork { rules: ms, score, class_map, fired: info, deltas, model_scored } = w;
         info.clear();
+        *model_scored = None;
+        // One pass over the fired rules, in precedence order: resolve each once
+        // (its class in the model, whether it is active) and note the first
+        // active review rule, the first guard that assigns and the first active
+        // assign rule.
+        let mut review_rule: Option<&Rule> = None;
+        let mut guard_assign: Option<&Rule> = None;
+        let mut first_assign: Option<&Rule> = None;
         if let Some(set) = rules.filter(|r| !r.is_empty()) {
-            // Each fired rule is resolved once: its class in the model, and whether it is active.
             for &i in set.matches(terms, fields, ms) {
                 let r = set.rule(i);
-                let class = usable.and_then(|m| model_class(class_map, m, r));
+                // The model's class index matters for boosts and for takeover.
+                let needs_class = self.blend == BlendMode::Takeover || self.boost_of(r) != 0.0;
+                let class = usable.filter(|_| needs_class).and_then(|m| model_class(class_map, m, r));
                 let active = r.guard
                     || self.blend != BlendMode::Takeover
                     || class.map_or(0.0, |c| usable.expect("class implies model").doc_counts()[c])
                         < self.takeover_labels;
                 info.push(Fired { rule: i, class, active });
+                match r.action {
+                    Action::Review if active => {
+                        review_rule.get_or_insert(r);
+                    }
+                    Action::Assign => {
+                        if r.guard {
+                            guard_assign.get_or_insert(r);
+                        }
+                        if active {
+                            first_assign.get_or_insert(r);
+                        }
+                    }
+                    _ => {}
+                }
             }
         }
         // `info` is empty unless `rules` is a set, so this never panics.
@@ -127,16 +153,15 @@ impl Decider {
             model_version: model_version.to_string(),
             top_terms: Vec::new(),
         };
-        let review_rule = info.iter().map(|f| (rule(f.rule), f)).find(|(r, f)| r.action == Action::Review && f.active);
         let review_of = |d: Option<ReviewReason>| -> Option<ReviewReason> {
             match review_rule {
-                Some((r, _)) => Some(ReviewReason::Rule { id: r.id.clone() }),
+                Some(r) => Some(ReviewReason::Rule { id: r.id.clone() }),
                 None => d,
             }
         };
 
         // 1. Guards that assign.
-        if let Some(g) = info.iter().map(|f| rule(f.rule)).find(|r| r.guard && r.action == Action::Assign) {
+        if let Some(g) = guard_assign {
             let mut d = rule_decision(g, 1.0);
             d.review = review_of(None);
             return d;
@@ -147,9 +172,7 @@ impl Decider {
             BlendMode::ModelFirst => usable.is_none(),
         };
         if rules_decide {
-            if let Some((a, _)) =
-                info.iter().map(|f| (rule(f.rule), f)).find(|(r, f)| r.action == Action::Assign && f.active)
-            {
+            if let Some(a) = first_assign {
                 let mut d = rule_decision(a, 1.0);
                 d.review = review_of(None);
                 return d;
@@ -158,14 +181,25 @@ impl Decider {
         // 3. The model, with boosts.
         if let (Some(m), true) = (usable, self.blend != BlendMode::RulesOnly) {
             let base = m.score(&terms.bag, score);
+            *model_scored = Some(base);
             let mut scored = base;
             deltas.clear();
+            let mut assign_factor = None;
             for f in info.iter().filter(|f| f.active) {
-                let amount = self.boost_of(rule(f.rule));
+                let r = rule(f.rule);
+                let amount = self.boost_of(r);
                 if let (Some(c), true) = (f.class, amount != 0.0) {
-                    match deltas.iter_mut().find(|d| d.0 == c) {
-                        Some(d) => d.1 += amount,
-                        None => deltas.push((c, amount)),
+                    // exp(amount), precomputed for boost rules, once per record for assign_boost.
+                    let factor = match r.action {
+                        Action::Boost(_) => r.boost_factor,
+                        _ => *assign_factor.get_or_insert_with(|| self.assign_boost.exp()),
+                    };
+                    match deltas.iter_mut().find(|d| d.class == c) {
+                        Some(d) => {
+                            d.amount += amount;
+                            d.factor *= factor;
+                        }
+                        None => deltas.push(Delta { class: c, amount, factor }),
                     }
                 }
             }
@@ -193,7 +227,7 @@ impl Decider {
             };
         }
         // 4. A review rule's suggestion, or nobody.
-        if let Some((r, _)) = review_rule {
+        if let Some(r) = review_rule {
             let mut d = rule_decision(r, 0.0);
             d.review = review_of(None);
             return d;
@@ -241,7 +275,8 @@ impl Decider {
 #[derive(Debug, Clone, Copy)]
 pub struct Fired {
     pub rule: u32,
-    /// The rule's class in the model, if the model has it.
+    /// The rule's class in the model, if the model has it and the blend needs
+    /// it (the rule boosts, or the mode is `takeover`).
     pub class: Option<usize>,
     /// False for a non-guard rule whose class the model has taken over.
     pub active: bool,
@@ -268,31 +303,84 @@ fn model_class(cache: &mut Vec<u32>, m: &Model, r: &Rule) -> Option<usize> {
     found
 }
 
+/// The boosts of one class: summed log-odds and their exponential.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Delta {
+    pub class: usize,
+    pub amount: f64,
+    /// exp(amount), as the product of each boost's precomputed exponential.
+    pub factor: f64,
+}
+
 /// Add the boosts to the scores, then winner, runner-up, posterior and margin.
 ///
 /// The log-sum-exp is updated from the model's own instead of summed over every
 /// class again: with M = ln Σ exp(sᵢ) before the boosts (recovered as
 /// s_best − ln confidence), the sum after them is
-/// exp(M) · (1 + Σ_c exp(s_c − M) · (exp(δ_c) − 1)) over the boosted classes c.
-/// When boosts take away most of the mass (that sum under 0.01), cancellation
-/// would cost precision and the full sum is taken instead.
-fn rescore(scores: &mut [f64], deltas: &[(usize, f64)], base: Scored) -> Scored {
+/// exp(M) · (1 + Σ_c exp(s_c − M) · (exp(δ_c) − 1)) over the boosted classes c,
+/// where exp(δ_c) is the delta's `factor`. A boosted class whose share of the
+/// mass stays below e^−40 (4·10⁻¹⁸) before and after its boost changes that sum
+/// by less than its own share, so its exponential is skipped. When boosts take
+/// away most of the mass (the sum under 0.01), cancellation would cost
+/// precision, and when they overflow it, the sum is not finite: in both cases
+/// the full sum is taken instead.
+///
+/// Winner and runner-up: the model's were the top two of the unboosted scores
+/// (highest score, lowest index on ties). Unless a boost touched one of them,
+/// the new top two are among those two and the boosted classes, so only those
+/// are compared; otherwise every class is scanned again.
+fn rescore(scores: &mut [f64], deltas: &[Delta], base: Scored) -> Scored {
+    const NEGLIGIBLE: f64 = -40.0;
     let m = scores[base.best] - base.confidence.ln();
     let mut rel = 1.0;
-    for &(c, d) in deltas {
-        if scores[c].is_finite() {
-            rel += (scores[c] - m).exp() * d.exp_m1();
+    let mut touched_top = false;
+    for d in deltas {
+        let s = scores[d.class];
+        if s.is_finite() && s - m + d.amount.max(0.0) > NEGLIGIBLE {
+            rel += (s - m).exp() * (d.factor - 1.0);
         }
-        scores[c] += d;
+        scores[d.class] = s + d.amount;
+        touched_top |= d.class == base.best || Some(d.class) == base.runner_up;
     }
-    let lse = if m.is_finite() && rel > 0.01 { m + rel.ln() } else { log_sum_exp(scores) };
-    let (best, runner_up) = top_two(scores);
+    let lse = if m.is_finite() && rel > 0.01 && rel.is_finite() { m + rel.ln() } else { log_sum_exp(scores) };
+    let (best, runner_up) = if touched_top {
+        top_two_one_pass(scores)
+    } else {
+        let ahead = |a: usize, b: usize| scores[a] > scores[b] || (scores[a] == scores[b] && a < b);
+        let (mut best, mut second) = (base.best, base.runner_up);
+        for d in deltas {
+            let c = d.class;
+            if ahead(c, best) {
+                second = Some(best);
+                best = c;
+            } else if second.is_none_or(|s| ahead(c, s)) {
+                second = Some(c);
+            }
+        }
+        (best, second)
+    };
     let confidence = if scores[best].is_finite() { (scores[best] - lse).exp().min(1.0) } else { 0.0 };
     let margin = match runner_up {
         Some(r) if scores[r].is_finite() => scores[best] - scores[r],
         _ => f64::INFINITY,
     };
     Scored { best, runner_up, confidence, margin, ..base }
+}
+
+/// `model::score::top_two` in one pass: the highest score and the runner-up,
+/// the lowest index winning ties.
+fn top_two_one_pass(xs: &[f64]) -> (usize, Option<usize>) {
+    let mut best = 0;
+    let mut second: Option<usize> = None;
+    for (i, &x) in xs.iter().enumerate().skip(1) {
+        if x > xs[best] {
+            second = Some(best);
+            best = i;
+        } else if second.is_none_or(|s| x > xs[s]) {
+            second = Some(i);
+        }
+    }
+    (best, second)
 }
 
 fn round9(x: f64) -> f64 {
@@ -303,6 +391,7 @@ fn round9(x: f64) -> f64 {
 mod tests {
     use super::*;
     use crate::eval::folds::SplitMix64;
+    use crate::model::score::top_two;
 
     fn base_of(scores: &[f64]) -> Scored {
         let (best, runner_up) = top_two(scores);
@@ -319,6 +408,29 @@ mod tests {
         }
     }
 
+    /// Deltas as the blend builds them: amounts summed, factors multiplied.
+    fn merge(boosts: &[(usize, f64)]) -> Vec<Delta> {
+        let mut merged: Vec<Delta> = Vec::new();
+        for &(c, d) in boosts {
+            match merged.iter_mut().find(|x| x.class == c) {
+                Some(x) => {
+                    x.amount += d;
+                    x.factor *= d.exp();
+                }
+                None => merged.push(Delta { class: c, amount: d, factor: d.exp() }),
+            }
+        }
+        merged
+    }
+
+    fn boosted(scores: &[f64], deltas: &[Delta]) -> Vec<f64> {
+        let mut full = scores.to_vec();
+        for d in deltas {
+            full[d.class] += d.amount;
+        }
+        full
+    }
+
     #[test]
     fn incremental_rescore_equals_a_full_log_sum_exp() {
         let mut rng = SplitMix64::new(3);
@@ -329,17 +441,8 @@ mod tests {
             let n = 1 + trial % 4;
             let deltas: Vec<(usize, f64)> =
                 (0..n).map(|i| ((rng.below(k as u64) as usize + i) % k, -20.0 + 40.0 * rng.unit())).collect();
-            let mut merged: Vec<(usize, f64)> = Vec::new();
-            for &(c, d) in &deltas {
-                match merged.iter_mut().find(|x| x.0 == c) {
-                    Some(x) => x.1 += d,
-                    None => merged.push((c, d)),
-                }
-            }
-            let mut full = scores.clone();
-            for &(c, d) in &merged {
-                full[c] += d;
-            }
+            let merged = merge(&deltas);
+            let full = boosted(&scores, &merged);
             let want = base_of(&full);
             let mut s = scores.clone();
             let got = rescore(&mut s, &merged, base);
@@ -355,18 +458,76 @@ mod tests {
     }
 
     #[test]
+    fn rescore_picks_winner_and_runner_up_as_a_full_scan_does_with_ties() {
+        // Small integer scores make ties common; the full scan's order (highest
+        // score, lowest index) is the reference.
+        let mut rng = SplitMix64::new(11);
+        for trial in 0..3000 {
+            let k = 1 + (trial % 12);
+            let scores: Vec<f64> = (0..k).map(|_| -(rng.below(6) as f64)).collect();
+            let base = base_of(&scores);
+            let mut merged: Vec<(usize, f64)> = Vec::new();
+            for _ in 0..1 + trial % 3 {
+                let c = rng.below(k as u64) as usize;
+                let d = rng.below(5) as f64 - 2.0;
+                if d != 0.0 && !merged.iter().any(|x| x.0 == c) {
+                    merged.push((c, d));
+                }
+            }
+            let merged = merge(&merged);
+            let full = boosted(&scores, &merged);
+            let (best, runner_up) = top_two(&full);
+            let mut s = scores.clone();
+            let got = rescore(&mut s, &merged, base);
+            assert_eq!((got.best, got.runner_up), (best, runner_up), "trial {trial}: {scores:?} + {merged:?}");
+            let want_margin = runner_up.map_or(f64::INFINITY, |r| full[best] - full[r]);
+            assert_eq!(got.margin, want_margin);
+        }
+    }
+
+    #[test]
     fn rescore_falls_back_when_a_penalty_removes_almost_all_mass() {
         // The best class holds nearly all the mass and is pushed down by 50 log-odds.
         let scores = vec![0.0, -60.0, -61.0];
         let base = base_of(&scores);
         let mut s = scores.clone();
-        let got = rescore(&mut s, &[(0, -50.0)], base);
+        let got = rescore(&mut s, &merge(&[(0, -50.0)]), base);
         let want = base_of(&s);
         assert_eq!(got.best, 0);
         assert!((got.confidence - want.confidence).abs() < 1e-12, "{} vs {}", got.confidence, want.confidence);
         let mut s = scores.clone();
-        let got = rescore(&mut s, &[(0, -70.0)], base);
+        let got = rescore(&mut s, &merge(&[(0, -70.0)]), base);
         assert_eq!(got.best, 1);
         assert!((got.confidence - base_of(&s).confidence).abs() < 1e-12);
+    }
+
+    #[test]
+    fn one_pass_top_two_equals_the_models() {
+        let mut rng = SplitMix64::new(5);
+        for trial in 0..5000 {
+            let k = 1 + (trial % 9);
+            let xs: Vec<f64> = (0..k)
+                .map(|_| match rng.below(8) {
+                    0 => f64::NEG_INFINITY,
+                    v => -(v as f64),
+                })
+                .collect();
+            assert_eq!(top_two_one_pass(&xs), top_two(&xs), "{xs:?}");
+        }
+    }
+
+    #[test]
+    fn rescore_falls_back_when_boosts_overflow_the_sum() {
+        // Twenty boosts of 50 on one class: exp(1000) is not a finite f64.
+        let scores = vec![0.0, -3.0, -5.0];
+        let base = base_of(&scores);
+        let merged = merge(&[(2, 50.0); 20]);
+        assert!(merged[0].factor.is_infinite());
+        let mut s = scores.clone();
+        let got = rescore(&mut s, &merged, base);
+        let want = base_of(&s);
+        assert_eq!((got.best, got.runner_up), (2, Some(0)));
+        assert!((got.confidence - want.confidence).abs() < 1e-12, "{} vs {}", got.confidence, want.confidence);
+        assert!(got.confidence > 0.99);
     }
 }

@@ -188,10 +188,15 @@ impl<'a> Builder<'a> {
                 "the rule has only `none` conditions, so it would fire on almost every record; add an `any`, `all` or `regex`".into(),
             );
         }
+        let action = action.unwrap_or(Action::Assign);
         self.rules.push(Rule {
             id: id.to_string(),
             class: class.to_string(),
-            action: action.unwrap_or(Action::Assign),
+            action,
+            boost_factor: match action {
+                Action::Boost(x) => x.exp(),
+                _ => 1.0,
+            },
             priority,
             guard: r.guard.as_ref().is_some_and(|g| *g.get_ref()),
             note: r.note.as_ref().map(|n| n.get_ref().clone()),
@@ -389,6 +394,7 @@ impl<'a> Builder<'a> {
                 rule: c.rule,
                 field: c.field.map_or(ANY_FIELD, |f| f as u32),
                 len: item.tokens.len() as u32,
+                need: c.at_least,
             });
         }
         let mut keys: Vec<Box<str>> = by_token.keys().cloned().collect();
@@ -430,6 +436,17 @@ impl<'a> Builder<'a> {
             Some(RegexSet::new(&set_patterns).expect("each regex compiled on its own"))
         };
         let regex_conds = set_conds;
+        let counted = |r: &Rule| {
+            (r.conds.start..r.conds.end)
+                .filter(|&ci| conds[ci as usize].kind != CondKind::None && !deferred[ci as usize])
+                .count() as u32
+        };
+        let rule_need: Vec<u32> = rules.iter().map(counted).collect();
+        // Validation refuses rules with only `none` conditions, and a deferred
+        // regex needs a term condition beside it, so every rule counts one.
+        debug_assert!(rule_need.iter().all(|&n| n > 0), "a rule with nothing to count could never fire");
+        let has_deferred: Vec<bool> =
+            rules.iter().map(|r| (r.conds.start..r.conds.end).any(|ci| deferred[ci as usize])).collect();
         let mut order: Vec<u32> = (0..rules.len() as u32).collect();
         order.sort_by_key(|&i| {
             let r = &rules[i as usize];
@@ -459,6 +476,8 @@ impl<'a> Builder<'a> {
             regexes,
             regex_conds,
             deferred,
+            has_deferred,
+            rule_need,
             rank,
             classes,
         }

@@ -1,12 +1,16 @@
-//! Matching on the hot path: one index lookup per record token and one regex-set pass per field, then only the rules those hits touched are checked.
+//! Matching on the hot path: one index lookup per record token and one regex-set pass per field; each hit updates its condition's count, and a rule becomes a candidate only once all its term and regex-set conditions hold.
 //!
 //! Cost is linear in the record's terms plus the postings they hit; rules that
-//! no term of the record mentions are never looked at. Per-record state lives
-//! in a reusable `MatchScratch` and is reset by bumping an epoch, not by
-//! clearing arrays sized by the rule set.
+//! no term of the record mentions are never looked at, and rules that are only
+//! partly met are never looked at either: each rule counts its conditions as
+//! they reach their `at_least`, and lands on the candidate list when the count
+//! reaches the rule's number of such conditions. Candidates are then checked
+//! for `none` conditions (a hit marks the rule as blocked) and deferred
+//! regexes. Per-record state lives in a reusable `MatchScratch` and is reset by
+//! bumping an epoch, not by clearing arrays sized by the rule set.
 
 use super::record::{FieldText, RecordTerms};
-use super::ruleset::{CondKind, RuleSet, ANY_FIELD};
+use super::ruleset::{Cond, RuleSet, ANY_FIELD};
 
 /// Reusable per-worker buffers for `RuleSet::matches`.
 #[derive(Debug, Default, Clone)]
@@ -15,9 +19,17 @@ pub struct MatchScratch {
     item_mark: Vec<u32>,
     cond_mark: Vec<u32>,
     cond_hits: Vec<u32>,
+    /// Epoch in which `rule_met` was last written, per rule.
     rule_mark: Vec<u32>,
-    candidates: Vec<u32>,
+    /// Conditions of the rule that hold so far (this epoch).
+    rule_met: Vec<u32>,
+    /// Epoch in which a `none` condition of the rule was hit.
+    rule_blocked: Vec<u32>,
+    /// Rules whose counted conditions all hold.
+    complete: Vec<u32>,
     words: Vec<u32>,
+    /// Fired rules as `rank << 32 | rule`, sorted into precedence order.
+    keyed: Vec<u64>,
     /// The rules that fired on the last record, in precedence order.
     pub fired: Vec<u32>,
 }
@@ -34,42 +46,44 @@ impl MatchScratch {
         }
         if self.rule_mark.len() < nr {
             self.rule_mark.resize(nr, 0);
+            self.rule_met.resize(nr, 0);
+            self.rule_blocked.resize(nr, 0);
         }
         if self.epoch == u32::MAX {
             self.item_mark.fill(0);
             self.cond_mark.fill(0);
             self.rule_mark.fill(0);
+            self.rule_blocked.fill(0);
             self.epoch = 0;
         }
         // Marks only ever hold past epochs, so a larger epoch clears them all
         // at once, whatever rule set they were written for.
         self.epoch += 1;
-        self.candidates.clear();
+        self.complete.clear();
         self.fired.clear();
     }
 
-    #[inline]
-    fn hit(&mut self, cond: u32, rule: u32, by: u32) {
-        let c = cond as usize;
-        if self.cond_mark[c] != self.epoch {
-            self.cond_mark[c] = self.epoch;
-            self.cond_hits[c] = 0;
-        }
-        self.cond_hits[c] += by;
-        let r = rule as usize;
-        if self.rule_mark[r] != self.epoch {
-            self.rule_mark[r] = self.epoch;
-            self.candidates.push(rule);
-        }
-    }
-
-    #[inline]
-    fn hits(&self, cond: u32) -> u32 {
-        let c = cond as usize;
-        if self.cond_mark[c] == self.epoch {
+    /// `by` more hits for condition `cond` of `rule`, which needs `need` of
+    /// them (0 for a `none` condition); the rule counts `rule_need` conditions.
+    #[inline(always)]
+    fn hit(&mut self, cond: u32, rule: u32, by: u32, need: u32, rule_need: &[u32]) {
+        let (c, r) = (cond as usize, rule as usize);
+        let before = if self.cond_mark[c] == self.epoch {
             self.cond_hits[c]
         } else {
+            self.cond_mark[c] = self.epoch;
             0
+        };
+        self.cond_hits[c] = before + by;
+        if need == 0 {
+            self.rule_blocked[r] = self.epoch;
+        } else if before < need && before + by >= need {
+            let met = if self.rule_mark[r] == self.epoch { self.rule_met[r] + 1 } else { 1 };
+            self.rule_mark[r] = self.epoch;
+            self.rule_met[r] = met;
+            if met == rule_need[r] {
+                self.complete.push(rule);
+            }
         }
     }
 }
@@ -81,30 +95,23 @@ impl RuleSet {
     /// analyzer this set was compiled with.
     pub fn matches<'s>(&self, terms: &RecordTerms, texts: &[FieldText<'_>], s: &'s mut MatchScratch) -> &'s [u32] {
         s.begin(self);
+        let bag = &terms.bag;
         for span in &terms.spans {
-            s.words.clear();
-            for i in span.start..span.end {
-                if !terms.bag.get(i).0.contains(' ') {
-                    s.words.push(i as u32);
-                }
-            }
             let field = span.field as u32;
-            for p in 0..s.words.len() {
-                let term = terms.bag.get(s.words[p] as usize).0;
-                let Some(&(a, b)) = self.index.get(term) else { continue };
-                for post in &self.postings[a as usize..b as usize] {
-                    if post.field != ANY_FIELD && post.field != field {
-                        continue;
-                    }
-                    if s.item_mark[post.item as usize] == s.epoch {
-                        continue;
-                    }
-                    if post.len > 1 && !self.phrase_at(post.item, terms, &s.words, p) {
-                        continue;
-                    }
-                    s.item_mark[post.item as usize] = s.epoch;
-                    s.hit(post.cond, post.rule, 1);
+            if terms.words_only {
+                // Every entry is a word: the span itself is the word sequence.
+                for i in span.start..span.end {
+                    self.term_hits(bag.get(i).0, field, s, |j| (i + j < span.end).then(|| bag.get(i + j).0));
                 }
+            } else {
+                let mut words = std::mem::take(&mut s.words);
+                words.clear();
+                words.extend((span.start..span.end).filter(|&i| !bag.get(i).0.contains(' ')).map(|i| i as u32));
+                for p in 0..words.len() {
+                    let next = |j: usize| words.get(p + j).map(|&w| bag.get(w as usize).0);
+                    self.term_hits(bag.get(words[p] as usize).0, field, s, next);
+                }
+                s.words = words;
             }
         }
         if let Some(set) = &self.regex_set {
@@ -121,37 +128,58 @@ impl RuleSet {
                     }
                     let re = &self.regexes[c.regex.expect("regex condition") as usize];
                     let n = if c.at_least > 1 { re.find_iter(f.text).count() as u32 } else { 1 };
-                    s.hit(ci, c.rule, n);
+                    s.hit(ci, c.rule, n, c.at_least, &self.rule_need);
                 }
             }
         }
-        for k in 0..s.candidates.len() {
-            let r = s.candidates[k];
+        // Candidates: every counted condition holds. Left to check: no `none`
+        // condition was hit, and deferred regexes. Fired rules are keyed by
+        // precedence rank, so one sort of integers orders them.
+        s.keyed.clear();
+        for k in 0..s.complete.len() {
+            let r = s.complete[k];
+            if s.rule_blocked[r as usize] == s.epoch {
+                continue;
+            }
             let rule = &self.rules[r as usize];
-            let ok = (rule.conds.start..rule.conds.end).all(|ci| {
-                let c = &self.conds[ci as usize];
-                if self.deferred[ci as usize] {
-                    return true;
-                }
-                let h = s.hits(ci);
-                match c.kind {
-                    CondKind::None => h == 0,
-                    _ => h >= c.at_least,
-                }
-            }) && (rule.conds.start..rule.conds.end)
-                .filter(|&ci| self.deferred[ci as usize])
-                .all(|ci| self.regex_holds(&self.conds[ci as usize], texts));
+            let range = rule.conds.start as usize..rule.conds.end as usize;
+            let ok = !self.has_deferred[r as usize]
+                || self.conds[range.clone()]
+                    .iter()
+                    .zip(&self.deferred[range])
+                    .filter(|(_, &d)| d)
+                    .all(|(c, _)| self.regex_holds(c, texts));
             if ok {
-                s.fired.push(r);
+                s.keyed.push(u64::from(self.rank[r as usize]) << 32 | u64::from(r));
             }
         }
-        let rank = &self.rank;
-        s.fired.sort_unstable_by_key(|&r| rank[r as usize]);
+        s.keyed.sort_unstable();
+        s.fired.extend(s.keyed.iter().map(|&k| k as u32));
         &s.fired
     }
 
+    /// Postings of one record word: mark the items it starts (phrases checked
+    /// against the following words, `next(j)` being the j-th word after it).
+    #[inline]
+    fn term_hits<'t>(&self, term: &str, field: u32, s: &mut MatchScratch, next: impl Fn(usize) -> Option<&'t str>) {
+        let Some(&(a, b)) = self.index.get(term) else { return };
+        for post in &self.postings[a as usize..b as usize] {
+            if post.field != ANY_FIELD && post.field != field {
+                continue;
+            }
+            if s.item_mark[post.item as usize] == s.epoch {
+                continue;
+            }
+            if post.len > 1 && !self.items[post.item as usize].tokens[1..].iter().enumerate().all(|(j, t)| next(j + 1) == Some(&**t)) {
+                continue;
+            }
+            s.item_mark[post.item as usize] = s.epoch;
+            s.hit(post.cond, post.rule, 1, post.need, &self.rule_need);
+        }
+    }
+
     /// A deferred regex condition, checked on the fields in its scope.
-    fn regex_holds(&self, c: &super::ruleset::Cond, texts: &[FieldText<'_>]) -> bool {
+    fn regex_holds(&self, c: &Cond, texts: &[FieldText<'_>]) -> bool {
         let re = &self.regexes[c.regex.expect("regex condition") as usize];
         let in_scope = texts.iter().filter(|t| c.field.is_none_or(|f| f == t.field));
         if c.at_least <= 1 {
@@ -165,13 +193,5 @@ impl RuleSet {
             }
         }
         false
-    }
-
-    fn phrase_at(&self, item: u32, terms: &RecordTerms, words: &[u32], p: usize) -> bool {
-        let toks = &self.items[item as usize].tokens;
-        if p + toks.len() > words.len() {
-            return false;
-        }
-        toks[1..].iter().zip(&words[p + 1..]).all(|(t, &w)| terms.bag.get(w as usize).0 == &**t)
     }
 }

@@ -24,6 +24,10 @@ pub struct RecordTerms {
     /// Every field's weighted terms, in field order: what the model scores.
     pub bag: TermBag,
     pub spans: Vec<FieldSpan>,
+    /// Set by `analyze` when the analyzer makes no bigrams: every entry of the
+    /// bag is then one word, and the matcher need not look for spaces.
+    /// False (look) for bags filled by hand.
+    pub(crate) words_only: bool,
 }
 
 impl RecordTerms {
@@ -36,6 +40,7 @@ impl RecordTerms {
     pub fn analyze(&mut self, analyzer: &Analyzer, fields: &[FieldText<'_>], scratch: &mut AnalyzerScratch) {
         self.bag.clear();
         self.spans.clear();
+        self.words_only = !analyzer.settings().bigrams;
         for f in fields {
             let start = self.bag.len();
             analyzer.analyze_field(f.text, f.weight, scratch, &mut self.bag);

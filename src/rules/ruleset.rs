@@ -54,6 +54,9 @@ pub struct Rule {
     pub(crate) conds: Range<u32>,
     /// Index of `class` in `RuleSet::classes`.
     pub(crate) class_idx: u32,
+    /// exp(log_odds) of a boost (1 for other actions): the blend multiplies
+    /// these instead of taking an exponential per record.
+    pub(crate) boost_factor: f64,
 }
 
 /// The kind of one condition.
@@ -113,6 +116,8 @@ pub(crate) struct Posting {
     pub field: u32,
     /// Tokens in the item (1 for a single term).
     pub len: u32,
+    /// The condition's `at_least`: hits it needs, 0 for a `none` condition.
+    pub need: u32,
 }
 
 pub(crate) const ANY_FIELD: u32 = u32::MAX;
@@ -138,6 +143,11 @@ pub struct RuleSet {
     pub(crate) regex_conds: Vec<u32>,
     /// Per condition: a regex checked only once the rule's cheaper conditions hold.
     pub(crate) deferred: Vec<bool>,
+    /// Per rule: whether it has a deferred regex.
+    pub(crate) has_deferred: Vec<bool>,
+    /// Per rule: its conditions counted while matching (every condition but
+    /// `none` and deferred regexes); the rule is a candidate once all hold.
+    pub(crate) rule_need: Vec<u32>,
     /// Precedence rank of each rule (0 first): guards, then priority, then action, then file order.
     pub(crate) rank: Vec<u32>,
     pub(crate) classes: Vec<String>,

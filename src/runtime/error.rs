@@ -3,6 +3,8 @@
 use thiserror::Error;
 
 use crate::error::SnapshotError;
+use crate::rules::RulesError;
+use crate::runtime::watch::WatchError;
 
 #[derive(Debug, Error)]
 pub enum ServiceError {
@@ -10,6 +12,12 @@ pub enum ServiceError {
     NoModel,
     #[error("cannot load the model")]
     Model(#[source] SnapshotError),
+    #[error("cannot load the rules file (rules.path)")]
+    Rules(#[source] RulesError),
+    #[error(transparent)]
+    Watch(#[from] WatchError),
+    #[error("cannot install the SIGHUP handler (it reloads the model and the rules): {0}")]
+    Hangup(std::io::Error),
     #[error("analyzer patterns do not compile: {0}")]
     Analyzer(String),
     #[error("kafka {what}: {source}")]

@@ -1,4 +1,4 @@
-//! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model view seam, the learner and its label log, resolving id-only labels, shutdown, and `Service` that wires them from settings.
+//! The service runtime: the record pipeline, offset watermarks, acknowledgement tickets, the model and rules view seams, the learner and its label log, resolving id-only labels, hot reload (watcher, SIGHUP, admin), shutdown, and `Service` that wires them from settings.
 
 pub mod ack;
 pub mod assignment;
@@ -9,12 +9,15 @@ pub mod learner;
 pub mod model_view;
 pub mod monitor;
 pub mod pipeline;
+pub mod reload;
 pub mod resolver;
 pub mod router;
+pub mod rules_view;
 pub mod service;
 pub mod shutdown;
 pub mod startup;
 pub mod status;
+pub mod watch;
 pub mod watermark;
 
 pub use error::ServiceError;

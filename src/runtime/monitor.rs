@@ -486,7 +486,7 @@ mod tests {
             let text = if i % 10 == 0 { "glowring firmware pairing" } else { "parcel late parcel" };
             let payload = line(text);
             let rec = Inbound { topic: "t", partition: 0, offset: i, key: None, payload: Some(payload.as_bytes()), headers: Vec::new(), timestamp_ms: None };
-            let (_, d) = router.route(&view, &rec, &mut scratch);
+            let (_, d) = router.route(&view, None, &rec, &mut scratch);
             obs.observe(&view, d.as_ref().unwrap(), &scratch, Instant::now());
         }
         let d = &metrics.drift;

@@ -1,4 +1,4 @@
-//! The record loop: read from the source, wait for room in the partition (backpressure), route against one model view, hand to the sink; plus the retry loop for failed deliveries and the drain at the end.
+//! The record loop: read from the source, wait for room in the partition (backpressure), route against one model view and one rules set, hand to the sink; plus the retry loop for failed deliveries and the drain at the end.
 
 use std::sync::Arc;
 use std::time::{Duration, Instant};
@@ -20,6 +20,7 @@ use crate::runtime::model_view::ModelHandle;
 use crate::runtime::monitor::{DecisionObserver, DriftMonitor};
 use crate::runtime::resolver::Resolver;
 use crate::runtime::router::{RouteScratch, Router};
+use crate::runtime::rules_view::RulesHandle;
 use crate::runtime::watermark::{PartitionTrack, Tracker};
 
 /// Wait between sends of a failed delivery.
@@ -29,6 +30,7 @@ const RETRY_BACKOFF: Duration = Duration::from_millis(200);
 pub struct Pipeline {
     pub router: Arc<Router>,
     pub model: ModelHandle,
+    pub rules: RulesHandle,
     pub sink: Arc<Sink>,
     pub tracker: Arc<Tracker>,
     pub shared: Arc<AckShared>,
@@ -79,13 +81,18 @@ impl Pipeline {
         let m = self.metrics();
         m.records_in.inc();
         let started = Instant::now();
+        // One model view and one rules set per record, each read once.
         let view = self.model.current();
-        let (out, decision) = self.router.route(&view, rec, scratch);
+        let rules = self.rules.current();
+        let (out, decision) = self.router.route(&view, rules.as_deref().map(|r| &r.set), rec, scratch);
         m.scoring_latency.observe(started.elapsed().as_secs_f64());
+        if let Some(d) = &decision {
+            m.count_decided_by(&d.decided_by);
+        }
         if let (Some(o), Some(d)) = (observer.as_mut(), &decision) {
             o.observe(&view, d, scratch, started);
         }
-        drop(view);
+        drop((view, rules));
         if let (Some(r), Some(d)) = (&self.resolver, &decision) {
             if let (Some(id), Some(class)) = (&d.id, crate::runtime::router::class_label(&out.kind)) {
                 r.remember(id, scratch.terms(), class.clone(), rec.partition);

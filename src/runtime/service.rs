@@ -1,4 +1,4 @@
-//! `Service`: built from `Settings` (model loaded and validated first), run until the input ends or the shutdown token fires; then drain, flush, commit and stop every task it started.
+//! `Service`: built from `Settings` (model and rules loaded and validated first), run until the input ends or the shutdown token fires; then drain, flush, commit and stop every task it started (the reload coordinator among them).
 
 use std::path::Path;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -32,7 +32,9 @@ use crate::runtime::monitor::DriftMonitor;
 use crate::runtime::resolver::Resolver;
 use crate::runtime::startup;
 use crate::runtime::pipeline::{retry_loop, Pipeline};
+use crate::runtime::reload::{self, ModelReloader, PublishDirectly, Reloader, ThroughLearner};
 use crate::runtime::router::Router;
+use crate::runtime::rules_view::{RulesHandle, RulesView};
 use crate::runtime::watermark::{NoOffsets, OffsetSink, Tracker};
 use crate::settings::{Settings, SinkKind, SourceKind};
 
@@ -72,6 +74,8 @@ pub struct Service {
     settings: Settings,
     metrics: Arc<Metrics>,
     model: ModelHandle,
+    rules: RulesHandle,
+    model_reloader: Option<Arc<dyn ModelReloader>>,
     router: Arc<Router>,
     readiness: Arc<Readiness>,
     latency_hook: Option<LatencyHook>,
@@ -90,7 +94,8 @@ pub struct Service {
 }
 
 impl Service {
-    /// Load the model named by `service.model` and build the router; nothing is connected yet.
+    /// Load the model named by `service.model` and the rules named by
+    /// `rules.path` (if any), and build the router; nothing is connected yet.
     pub fn new(settings: Settings) -> Result<Service, ServiceError> {
         if settings.service.model.is_empty() {
             return Err(ServiceError::NoModel);
@@ -98,6 +103,11 @@ impl Service {
         let metrics = Arc::new(Metrics::new());
         let view = startup::initial_view(&settings, &metrics).map_err(ServiceError::Model)?;
         let router = Router::new(&settings).map_err(|e| ServiceError::Analyzer(e.to_string()))?;
+        let rules = match settings.rules.path.as_str() {
+            "" => None,
+            path => Some(RulesView::load(&settings, Path::new(path)).map_err(ServiceError::Rules)?),
+        };
+        metrics.rules_published(rules.iter().flat_map(|r| r.set.rules().iter().map(|x| x.id.as_str())));
         metrics.model_classes.set(view.classes.len() as i64);
         metrics.model_labels_applied.set(view.applied as i64);
         metrics.in_flight_limit.set(settings.delivery.max_in_flight_per_partition as i64);
@@ -118,6 +128,8 @@ impl Service {
             metrics,
             model,
             drift,
+            rules: RulesHandle::new(rules),
+            model_reloader: None,
             router: Arc::new(router),
             readiness,
             latency_hook: None,
@@ -176,6 +188,17 @@ impl Service {
         self.drift.clone()
     }
 
+    /// The seam where a reload publishes new rules.
+    pub fn rules(&self) -> RulesHandle {
+        self.rules.clone()
+    }
+
+    /// Replace how model reloads load and publish a file (the online learner
+    /// installs itself here). Without one, a reload publishes the file as is.
+    pub fn set_model_reloader(&mut self, r: Arc<dyn ModelReloader>) {
+        self.model_reloader = Some(r);
+    }
+
     pub fn readiness(&self) -> Arc<Readiness> {
         self.readiness.clone()
     }
@@ -203,6 +226,7 @@ impl Service {
         shutdown: CancellationToken,
     ) -> Result<RunReport, ServiceError> {
         let s = &self.settings;
+        let reloader = self.start_reload(tasks, stop_aux)?;
         if s.admin.enabled {
             let listener = TcpListener::bind(&s.admin.bind)
                 .await
@@ -215,6 +239,8 @@ impl Service {
             let state = AdminState {
                 metrics: self.metrics.clone(),
                 model: self.model.clone(),
+                rules: self.rules.clone(),
+                reloader: Some(reloader),
                 router: self.router.clone(),
                 readiness: self.readiness.clone(),
                 token: (!s.admin.token.is_empty()).then(|| s.admin.token.clone()),
@@ -263,6 +289,7 @@ impl Service {
         let make_pipeline = |tracker: Arc<Tracker>| Pipeline {
             router: self.router.clone(),
             model: self.model.clone(),
+            rules: self.rules.clone(),
             sink: sink.clone(),
             tracker,
             shared: shared.clone(),
@@ -346,6 +373,44 @@ impl Service {
                 Ok(RunReport { records_in: self.metrics.records_in.get(), drained })
             }
         }
+    }
+
+    /// The reloader shared by every trigger, and its coordinator task (SIGHUP,
+    /// and the file watcher when `reload.watch` is on).
+    fn start_reload(&self, tasks: &TaskTracker, stop: &CancellationToken) -> Result<Arc<Reloader>, ServiceError> {
+        let s = &self.settings;
+        // Model reloads go through the learner when it runs (it replays the
+        // label log from the file's offsets before publishing), else straight in.
+        let model_reloader = self.model_reloader.clone().unwrap_or_else(|| -> Arc<dyn ModelReloader> {
+            if s.learning.enabled {
+                Arc::new(ThroughLearner { learner: self.learner.clone(), model: self.model.clone() })
+            } else {
+                Arc::new(PublishDirectly { model: self.model.clone(), analyzer: s.analyzer.clone() })
+            }
+        });
+        let reloader = Arc::new(Reloader::new(
+            Arc::new(s.clone()),
+            self.model.clone(),
+            self.rules.clone(),
+            model_reloader,
+            self.metrics.clone(),
+        ));
+        let hangup = reload::hangup_signal().map_err(ServiceError::Hangup)?;
+        let watch = if s.reload.watch {
+            let files = reloader.files();
+            let files: Vec<_> = files.iter().map(|(t, p)| (*t, p.as_path())).collect();
+            Some(crate::runtime::watch::watch(&files)?)
+        } else {
+            None
+        };
+        let (r, stop) = (reloader.clone(), stop.clone());
+        let debounce = Duration::from_millis(s.reload.debounce_ms);
+        tasks.spawn(async move {
+            let flags = watch.as_ref().map(|w| w.flags.clone());
+            reload::coordinate(r, hangup, flags, debounce, stop).await;
+            drop(watch);
+        });
+        Ok(reloader)
     }
 
     /// Drain in-flight records within the limit, stop the learner (it writes a
