@@ -107,7 +107,8 @@ from prometheus_client.parser import text_string_to_metric_families
 out = {}
 for fam in text_string_to_metric_families(sys.stdin.read()):
     for s in fam.samples:
-        out.setdefault(s.name, []).append([s.labels, s.value])
+        # NaN (a gauge with nothing to report yet) is not JSON: sent as null.
+        out.setdefault(s.name, []).append([s.labels, s.value if s.value == s.value else None])
 print(json.dumps(out))
 "#;
     let mut child = std::process::Command::new(python)
@@ -120,7 +121,9 @@ print(json.dumps(out))
     child.stdin.take().unwrap().write_all(text.as_bytes()).unwrap();
     let out = child.wait_with_output().unwrap();
     assert!(out.status.success(), "prometheus_client refused the exposition text: {}", String::from_utf8_lossy(&out.stderr));
-    serde_json::from_slice(&out.stdout).expect("parser output is JSON")
+    let raw: std::collections::BTreeMap<String, Vec<(std::collections::BTreeMap<String, String>, Option<f64>)>> =
+        serde_json::from_slice(&out.stdout).expect("parser output is JSON");
+    raw.into_iter().map(|(k, v)| (k, v.into_iter().map(|(l, x)| (l, x.unwrap_or(f64::NAN))).collect())).collect()
 }
 
 /// The value of one sample (labels must match exactly), 0 if absent.
