@@ -1,4 +1,4 @@
-//! Online learning against a real broker: labels change decisions and equal an offline fold, corrections undo the wrong lesson, bad label events become dead letters, and replicas (one SIGKILLed and restarted from its snapshot) converge on the counts of a rebuild from the label topic.
+//! Online learning against a real broker: labels change decisions and equal an offline fold, corrections undo the wrong lesson, bad label events become dead letters, replicas (one SIGKILLed and restarted from its snapshot) converge on the counts of a rebuild from the label topic, and a model swapped in at 20,000 records/s loses nothing and switches once per partition.
 //!
 //! Delivery semantics follow Kafka's at-least-once consumption: the
 //! learned-label topic is read by assignment and its position lives in
@@ -319,4 +319,67 @@ fn three_replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     assert!(reasons.iter().any(|r| r == "malformed label"), "{reasons:?}");
     assert!(reasons.iter().any(|r| r == "unknown id"), "{reasons:?}");
     eprintln!("raw-label dead letters: {} ({} unknown id: records scored by the other replica before a rebalance, or never)", reasons.len(), reasons.iter().filter(|r| *r == "unknown id").count());
+}
+
+#[test]
+fn model_swapped_in_at_20k_records_per_second_switches_once_per_partition() {
+    let brokers = brokers();
+    let dir = test_dir("learn-swap");
+    let live = dir.join("live.svm");
+    std::fs::copy(base_model(&dir), &live).unwrap();
+    let mut sc = Scenario::new("swap", &brokers, &live, &dir, 4);
+    sc.max_in_flight = 10_000;
+    let labels_topic = format!("{}.labels", sc.prefix);
+    sc.extra = learning_extra(&sc.prefix, &dir.join("snapshot.svm"), None);
+    let outs = sc.create_topics(CLASSES);
+    create_topics(&brokers, &[(&labels_topic, 1)]);
+    let mut svc = sc.start("a");
+    svc.wait_ready(Duration::from_secs(60));
+    let old_version = model_info(&svc)["model_version"].as_str().unwrap().to_string();
+
+    // A newly trained model (all four classes) waits beside the served file.
+    let fresh = data::train_model(&dir);
+    let new_sum = snapshot::read(&fresh, None).unwrap().checksum;
+    let new_version = format!("{}+0", &new_sum[..12]);
+
+    let n = 80_000;
+    let feeder = common::kafka::Feeder::start(&brokers, &sc.input, data::stream(n, 64, None, 5), 20_000);
+    wait_for(Duration::from_secs(30), "a third of the stream to be scored", || {
+        (svc.counter("sieveline_records_in_total").unwrap_or(0.0) >= (n / 3) as f64).then_some(())
+    });
+    // Deploy it the way an operator would: rename over the served file, then ask for a reload.
+    let tmp = dir.join("live.svm.tmp");
+    std::fs::copy(&fresh, &tmp).unwrap();
+    std::fs::rename(&tmp, &live).unwrap();
+    let (st, body) = http(svc.port, "POST", "/reload?what=model", None, b"").expect("POST /reload");
+    assert_eq!(st, 200, "{body}");
+    feeder.finish();
+
+    let mut col = Collector::new(&brokers, &outs);
+    let expected = common::kafka::input_positions(&brokers, &sc.input, 4);
+    assert!(col.until_covered(&expected, Duration::from_secs(120)), "every record decided");
+    col.poll_for(Duration::from_secs(1));
+    let tally = common::kafka::tally(&expected, &col.per_source());
+    assert_eq!((tally.missing, tally.duplicates), (0, 0), "no record lost or scored twice: {tally:?}");
+
+    // Per partition, in offset order: the old version, then the new one from a single offset on.
+    let mut per_part: HashMap<i32, Vec<(i64, String)>> = HashMap::new();
+    for r in &col.records {
+        let v: Value = serde_json::from_slice(&r.payload).unwrap();
+        let (p, o) = r.source();
+        per_part.entry(p).or_default().push((o, v["model_version"].as_str().unwrap().to_string()));
+    }
+    let mut switched = 0;
+    for (p, mut v) in per_part {
+        v.sort();
+        let first_new = v.iter().position(|(_, ver)| *ver == new_version);
+        let (old, new) = v.split_at(first_new.unwrap_or(v.len()));
+        assert!(old.iter().all(|(_, ver)| *ver == old_version), "partition {p}: before the switch only {old_version}");
+        assert!(new.iter().all(|(_, ver)| *ver == new_version), "partition {p}: after offset {:?} only {new_version}", new.first());
+        switched += usize::from(!new.is_empty() && !old.is_empty());
+        eprintln!("partition {p}: {} records on {old_version}, {} on {new_version} from offset {:?}", old.len(), new.len(), new.first().map(|x| x.0));
+    }
+    assert!(switched >= 3, "the swap happened mid-stream on the partitions ({switched} of 4)");
+    svc.signal("TERM");
+    assert!(svc.wait_exit(Duration::from_secs(30)).expect("exit").success());
 }
