@@ -6,7 +6,7 @@
 //! 3. `connect_reports_partitions_and_a_missing_topic_on_the_real_broker` — partition counts, a missing class topic named with its fix (exit 2), all present (exit 0), unreachable brokers (exit 1).
 //! 4. `connect_reports_acl_refusals_for_topic_and_group` — Describe denied on a topic and on the group: both reported by name with the Kafka error (exit 2).
 
-mod common;
+use crate::common;
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};

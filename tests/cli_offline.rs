@@ -1,7 +1,7 @@
 //! The offline commands end to end: documented behaviour on bad input, model-file refusal
 //! with exit code 4, analyzer-mismatch messages naming the setting, settings errors (exit 2).
 
-mod support;
+use crate::support;
 
 use std::path::Path;
 

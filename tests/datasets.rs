@@ -7,7 +7,7 @@
 //!   CV picks 0.05 and scores 0.8666; shuffled stratified folds pick 0.1 and score 0.8623.
 //! The reference figures come from the dataset README in ../shared/data.
 
-mod support;
+use crate::support;
 
 use support::*;
 

@@ -6,7 +6,7 @@
 //!   bounded number of records after each phase change; after the new product line, accuracy
 //!   comes back to within 5 points of the steady state once its labels arrive.
 
-mod common;
+use crate::common;
 
 use std::collections::HashMap;
 use std::path::Path;

@@ -3,8 +3,8 @@
 //! Index — what each test guards:
 //! 1. `image_build_steps_and_entry_command_run_and_serve` — the build steps succeed, the runtime stage's packages cover every library the binary links, the entry command starts the service as a non-root user, it becomes ready, routes records, guards `/assignment` with the Secret's token and exits 0 on SIGTERM within the pod's grace period.
 
-mod common;
-mod deploy_support;
+use crate::common;
+use crate::deploy_support;
 
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};

@@ -8,7 +8,7 @@
 //! 5. `replicas_share_one_group_and_disruptions_leave_coverage` — one consumer group for all replicas, a PodDisruptionBudget selecting the pods, a rolling update that never drops below the replica count.
 //! 6. `systemd_unit_is_accepted_by_systemd_analyze` — `systemd-analyze verify` (systemd's own unit checker) finds no unknown key or bad value; restart policy, reload signal and hardening are set.
 
-mod deploy_support;
+use crate::deploy_support;
 
 use std::collections::BTreeMap;
 

@@ -9,7 +9,7 @@
 //! - `alert_thresholds_equal_the_status_page_thresholds` — the numbers in the alert expressions
 //!   are the `[drift.thresholds]` defaults the status page shows beside each indicator.
 
-mod support;
+use crate::support;
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

@@ -8,7 +8,7 @@
 //! - `psi_matches_the_formula_evaluated_by_python` — `drift::psi` equals
 //!   Σ (aᵢ − eᵢ) · ln(aᵢ / eᵢ) with the 1e-4 floor, evaluated independently with Python's `math`.
 
-mod support;
+use crate::support;
 
 use std::io::Write;
 use std::process::{Command, Stdio};

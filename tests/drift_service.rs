@@ -19,7 +19,7 @@
 //! - `status_page_and_its_data_need_the_token_when_one_is_set` — `/` and `/status.json` answer
 //!   401 without `Authorization: Bearer` (RFC 6750) when a token is set; `/metrics` does not.
 
-mod common;
+use crate::common;
 
 use std::io::Write;
 use std::path::{Path, PathBuf};

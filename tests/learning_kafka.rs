@@ -5,7 +5,7 @@
 //! snapshots, so a replay after a crash refolds nothing twice (offsets below a
 //! snapshot's are skipped) and misses nothing (everything above is read).
 
-mod common;
+use crate::common;
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};

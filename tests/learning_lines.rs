@@ -4,7 +4,7 @@
 //! - `label_file_is_folded_before_scoring_and_restarts_replay_from_the_snapshot` — versions count labels once across restarts; refused label lines are dead letters once.
 //! - `model_trained_with_label_offsets_end_replays_nothing` — `train --label-offsets end` records the label log's end.
 
-mod common;
+use crate::common;
 
 use std::path::Path;
 use std::process::Command;

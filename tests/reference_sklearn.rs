@@ -6,7 +6,7 @@
 //! Data: the SMS Spam Collection (Almeida, Gómez Hidalgo and Yamakami, DocEng 2011), split
 //! by row index i % 5 == 4.
 
-mod support;
+use crate::support;
 
 use std::process::Command;
 

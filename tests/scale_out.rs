@@ -8,7 +8,7 @@
 //!    kill, and duplicates stay within the at-least-once bound. The time from each loss to full
 //!    coverage is printed (a figure, not an assertion: the bench `sieveline bench-scale` measures it).
 
-mod common;
+use crate::common;
 
 use std::time::{Duration, Instant};
 

@@ -2,7 +2,7 @@
 //!
 //! Index: `bench_stream_reports_both_rates_and_latency_quantiles` — the bench runs end to end and reports positive service and pass-through rates and ordered latency quantiles.
 
-mod common;
+use crate::common;
 
 #[test]
 fn bench_stream_reports_both_rates_and_latency_quantiles() {

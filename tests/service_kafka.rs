@@ -11,7 +11,7 @@
 //! 7. `scale_out_splits_partitions_and_survivor_takes_over` — two instances in one group, one killed.
 //! 8. `admin_metrics_match_outputs_and_spare_replica_is_ready` — `/metrics` parsed by the exposition-format reference (Python prometheus_client), counters equal outputs; readiness with zero partitions; model info; classify.
 
-mod common;
+use crate::common;
 
 use std::collections::{BTreeMap, HashMap};
 use std::time::{Duration, Instant};

@@ -6,7 +6,7 @@
 //! - `non_loopback_admin_needs_a_token_for_everything_but_metrics_and_health` — refused without a token; with one, /model and /classify require `Authorization: Bearer` (RFC 6750), /metrics and /healthz do not.
 //! - `missing_model_is_a_usage_error` — exit code 2 naming the setting.
 
-mod common;
+use crate::common;
 
 use std::io::Write;
 use std::process::{Command, Stdio};

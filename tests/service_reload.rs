@@ -7,7 +7,7 @@
 //! 4. `a_broken_rules_file_at_start_is_a_settings_error` — exit code 2, the message names the file, the line and the rule.
 //! 5. `with_learning_on_a_model_reload_goes_through_the_learner_and_replays_the_label_log` — the watcher's reload of a good file serves it with the label log replayed on top (version `<checksum>+<labels>`), a truncated one is refused by the learner.
 
-mod common;
+use crate::common;
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
