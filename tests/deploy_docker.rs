@@ -1,7 +1,7 @@
 //! The Dockerfile's steps run outside a container engine (none runs here): `deploy/docker/dry-run.py` runs the build stage's RUN lines (the same dependency script and cargo build), stages the runtime image's files and checks what its RUN lines must achieve; then the image's entry command runs from the staging folder with the Kubernetes ConfigMap's settings, as the image's non-root user, against the real broker (`SIEVELINE_TEST_BROKERS`; missing is a failure).
 //!
 //! Index — what each test guards:
-//! 1. `image_build_steps_and_entry_command_run_and_serve` — the build steps succeed, the runtime stage's packages cover every library the binary links, the entry command starts the service as a non-root user, it becomes ready, routes records, guards `/assignment` with the Secret's token and exits 0 on SIGTERM within the pod's grace period.
+//! 1. `image_build_steps_and_entry_command_run_and_serve` — the build steps succeed, the runtime stage's packages cover every library the binary links, the entry command starts the service as a non-root user, it becomes ready, routes records, guards `/assignment` with the Secret's token (input and co-partitioned raw label partitions), exits 0 on SIGTERM within the pod's grace period and leaves a snapshot on the snapshots volume.
 
 use crate::common;
 use crate::deploy_support;
@@ -63,6 +63,14 @@ fn image_build_steps_and_entry_command_run_and_serve() {
     // 3. Topics of this run (names are site-specific, so they come from the environment here).
     let sc = Scenario::new("docker", &brokers, &staged(pod_model), &dir, 2);
     let outs = sc.create_topics(CLASSES);
+    // The ConfigMap turns learning on: its label topics (the raw one co-partitioned with the
+    // input) and the snapshot on the snapshots volume, writable by the image's user.
+    let (label_topic, raw_label_topic) = (format!("{}.labels", sc.prefix), format!("{}.labels.raw", sc.prefix));
+    common::kafka::create_topics(&brokers, &[(label_topic.as_str(), 1), (raw_label_topic.as_str(), 2)]);
+    let pod_snapshot = "/var/lib/sieveline/snapshots/model.svm";
+    assert!(settings_text.contains(pod_snapshot), "the ConfigMap keeps snapshots on the snapshots volume");
+    let snapshot_dir = staged(pod_snapshot).parent().unwrap().to_path_buf();
+    std::fs::create_dir_all(&snapshot_dir).unwrap();
     let port = free_port();
     let token = "token-from-the-secret";
     let mut env: Vec<(String, String)> = report["env"].as_object().unwrap().iter().map(|(k, v)| (k.clone(), v.as_str().unwrap().to_string())).collect();
@@ -83,6 +91,9 @@ fn image_build_steps_and_entry_command_run_and_serve() {
         ("SIEVELINE__ROUTING__REVIEW_TOPIC".into(), sc.review_topic()),
         ("SIEVELINE__DEAD_LETTER__TOPIC".into(), sc.dead_topic()),
         ("SIEVELINE__SERVICE__MODEL".into(), staged(pod_model).display().to_string()),
+        ("SIEVELINE__LEARNING__LABEL_TOPIC".into(), label_topic.clone()),
+        ("SIEVELINE__LEARNING__RAW_LABEL_TOPIC".into(), raw_label_topic.clone()),
+        ("SIEVELINE__SNAPSHOT__PATH".into(), staged(pod_snapshot).display().to_string()),
         ("SIEVELINE__ADMIN__BIND".into(), format!("127.0.0.1:{port}")),
         ("SIEVELINE__ADMIN__TOKEN".into(), token.into()),
         ("SIEVELINE__KAFKA__PROPERTIES__SESSION_TIMEOUT_MS".into(), "6000".into()),
@@ -95,6 +106,8 @@ fn image_build_steps_and_entry_command_run_and_serve() {
     let mut argv: Vec<String> = entry.iter().map(|a| if a.starts_with('/') { staged(a).display().to_string() } else { a.clone() }).collect();
     let root = effective_uid() == 0;
     if root {
+        // What the image's `chown -R 10001:10001 /var/lib/sieveline` gives the volume.
+        std::os::unix::fs::chown(&snapshot_dir, Some(uid), Some(gid)).unwrap();
         let mut p = vec!["setpriv".to_string(), format!("--reuid={uid}"), format!("--regid={gid}"), "--clear-groups".into(), "--".into()];
         p.extend(argv);
         argv = p;
@@ -136,7 +149,10 @@ fn image_build_steps_and_entry_command_run_and_serve() {
     let (st, body) = http(port, "GET", "/assignment", Some(token), b"").unwrap();
     assert_eq!(st, 200);
     let a: serde_json::Value = serde_json::from_str(&body).unwrap();
-    assert_eq!(a["count"], 2, "{body}");
+    // The input's two partitions, and the raw label topic's matching two (co-partitioned).
+    assert_eq!(a["partitions"][&sc.input], serde_json::json!([0, 1]), "{body}");
+    assert_eq!(a["partitions"][&raw_label_topic], serde_json::json!([0, 1]), "{body}");
+    assert_eq!(a["count"], 4, "{body}");
 
     let grace = Duration::from_secs(k.deployment()["spec"]["template"]["spec"]["terminationGracePeriodSeconds"].as_u64().unwrap());
     let t0 = Instant::now();
@@ -149,6 +165,8 @@ fn image_build_steps_and_entry_command_run_and_serve() {
         std::thread::sleep(Duration::from_millis(20));
     };
     assert!(st.success(), "exit status {st}; log:\n{}", log_text());
+    let snapshot = std::fs::read(staged(pod_snapshot)).unwrap_or_else(|e| panic!("a shutdown snapshot on the snapshots volume: {e}; log:\n{}", log_text()));
+    assert!(snapshot.len() > 64, "the snapshot holds a model ({} bytes)", snapshot.len());
     eprintln!("entry command stopped {:?} after SIGTERM", t0.elapsed());
 }
 
