@@ -59,6 +59,10 @@ pub struct DecideWork {
     pub fired: Vec<Fired>,
     /// Per boosted model class: the summed boost and its exponential.
     deltas: Vec<Delta>,
+    /// Per model class: 1 + its index in `deltas` this record, or 0.
+    delta_slot: Vec<u32>,
+    /// (assign_boost, exp(assign_boost)) last used.
+    assign_exp: (f64, f64),
 }
 
 impl Decider {
@@ -103,7 +107,7 @@ impl Decider {
         w: &mut DecideWork,
     ) -> Decision {
         let usable = model.filter(|m| !m.is_empty());
-        let DecideWork { rules: ms, score, class_map, class_map_key, fired: info, deltas } = w;
+        let DecideWork { rules: ms, score, class_map, class_map_key, fired: info, deltas, delta_slot, assign_exp } = w;
         info.clear();
         // One pass over the fired rules, in precedence order: resolve each once
         // from the set's compact per-rule data (its boost, its class in the
@@ -124,32 +128,28 @@ impl Decider {
                 }
             }
             let takeover = self.blend == BlendMode::Takeover;
-            let assign_boost = if self.blend == BlendMode::ModelFirst { self.assign_boost } else { 0.0 };
-            let mut assign_factor = 0.0;
+            // model_first turns non-guard assign rules into boosts of assign_boost.
+            let (assign_boost, assign_factor) = if self.blend == BlendMode::ModelFirst {
+                if assign_exp.0 != self.assign_boost {
+                    *assign_exp = (self.assign_boost, self.assign_boost.exp());
+                }
+                *assign_exp
+            } else {
+                (0.0, 1.0)
+            };
             for &i in set.matches(terms, fields, ms) {
                 let h = set.meta(i);
-                let assign = h.kind == Kind::Assign;
-                // Boost rules add their log-odds; in model_first, non-guard assign rules add assign_boost.
-                let amount = h.log_odds + if assign && !h.guard { assign_boost } else { 0.0 };
-                let class = if takeover || amount != 0.0 {
-                    usable.and_then(|m| model_class(class_map, m, h.class_idx, set.class_name(h.class_idx)))
-                } else {
-                    None
-                };
+                // Arithmetic rather than branches on the rule's kind: they are
+                // data-dependent and would be mispredicted.
+                let w = f64::from(u8::from(h.nonguard_assign));
+                let amount = h.log_odds + w * assign_boost;
+                let factor = h.factor * (1.0 + w * (assign_factor - 1.0));
+                let class = usable.and_then(|m| model_class(class_map, m, h.class_idx, set.class_name(h.class_idx)));
                 let active = h.guard
                     || !takeover
                     || class.map_or(0.0, |c| usable.expect("class implies model").doc_counts()[c]) < self.takeover_labels;
-                let factor = match h.kind {
-                    Kind::Boost => h.factor,
-                    _ if amount != 0.0 => {
-                        if assign_factor == 0.0 {
-                            assign_factor = assign_boost.exp();
-                        }
-                        assign_factor
-                    }
-                    _ => 1.0,
-                };
                 info.push(Fired { rule: i, class, active, amount, factor });
+                let assign = h.kind == Kind::Assign;
                 if h.kind == Kind::Review && active && review_rule.is_none() {
                     review_rule = Some(set.rule(i));
                 }
@@ -203,16 +203,26 @@ impl Decider {
             let base = m.score(&terms.bag, score);
             let mut scored = base;
             deltas.clear();
+            if delta_slot.len() < m.classes().len() {
+                delta_slot.resize(m.classes().len(), 0);
+            }
             for f in info.iter().filter(|f| f.active && f.amount != 0.0) {
                 if let Some(c) = f.class {
-                    match deltas.iter_mut().find(|d| d.class == c) {
-                        Some(d) => {
+                    match delta_slot[c] {
+                        0 => {
+                            deltas.push(Delta { class: c, amount: f.amount, factor: f.factor });
+                            delta_slot[c] = deltas.len() as u32;
+                        }
+                        k => {
+                            let d = &mut deltas[k as usize - 1];
                             d.amount += f.amount;
                             d.factor *= f.factor;
                         }
-                        None => deltas.push(Delta { class: c, amount: f.amount, factor: f.factor }),
                     }
                 }
+            }
+            for d in deltas.iter() {
+                delta_slot[d.class] = 0;
             }
             let mut decided_by = DecidedBy::Model;
             if !deltas.is_empty() {
@@ -277,8 +287,7 @@ impl Decider {
 #[derive(Debug, Clone, Copy)]
 pub struct Fired {
     pub rule: u32,
-    /// The rule's class in the model, if the model has it and the blend needs
-    /// it (the rule boosts, or the mode is `takeover`).
+    /// The rule's class in the model, if there is a usable model and it has the class.
     pub class: Option<usize>,
     /// False for a non-guard rule whose class the model has taken over.
     pub active: bool,

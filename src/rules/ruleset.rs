@@ -80,6 +80,8 @@ pub(crate) struct RuleMeta {
     pub guard: bool,
     /// Whether it has a regex checked only once its other conditions hold.
     pub has_deferred: bool,
+    /// A non-guard assign rule: `model_first` turns it into a boost.
+    pub nonguard_assign: bool,
     /// A boost's log-odds; 0 for other actions.
     pub log_odds: f64,
     /// exp(log_odds): the blend multiplies these instead of taking an
@@ -94,7 +96,17 @@ impl RuleMeta {
             Action::Boost(x) => (Kind::Boost, x),
             Action::Review => (Kind::Review, 0.0),
         };
-        RuleMeta { need, rank, class_idx: r.class_idx, kind, guard: r.guard, has_deferred, log_odds, factor: log_odds.exp() }
+        RuleMeta {
+            need,
+            rank,
+            class_idx: r.class_idx,
+            kind,
+            guard: r.guard,
+            has_deferred,
+            nonguard_assign: kind == Kind::Assign && !r.guard,
+            log_odds,
+            factor: log_odds.exp(),
+        }
     }
 }
 
