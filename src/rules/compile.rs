@@ -62,6 +62,8 @@ pub fn compile(text: &str, source: &str, analyzer: &Analyzer, fields: &[String])
 
 struct Builder<'a> {
     text: &'a str,
+    /// Byte offsets of the text's newlines.
+    newlines: Vec<usize>,
     analyzer: &'a Analyzer,
     fields: &'a [String],
     problems: Vec<Problem>,
@@ -78,6 +80,7 @@ impl<'a> Builder<'a> {
     fn new(text: &'a str, analyzer: &'a Analyzer, fields: &'a [String]) -> Self {
         Builder {
             text,
+            newlines: text.bytes().enumerate().filter(|&(_, b)| b == b'\n').map(|(i, _)| i).collect(),
             analyzer,
             fields,
             problems: Vec::new(),
@@ -91,8 +94,11 @@ impl<'a> Builder<'a> {
         }
     }
 
+    /// `format::line_of`, by binary search over the newlines found once (a
+    /// scan per call would make compiling a large file quadratic).
     fn line(&self, offset: usize) -> usize {
-        line_of(self.text, offset)
+        let offset = offset.min(self.text.len());
+        self.newlines.partition_point(|&p| p < offset) + 1
     }
 
     fn problem(&mut self, line: usize, rule: Option<&str>, message: String) {
