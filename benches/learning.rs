@@ -167,7 +167,7 @@ fn main() {
                     i += 1;
                     let rec = Inbound { topic: "in", partition: 0, offset: i as i64, key: None, payload: Some(p), headers: Vec::new(), timestamp_ms: None };
                     let view = models.current();
-                    let (out, _) = router.route(&view, &rec, &mut rs);
+                    let (out, _) = router.route(&view, None, &rec, &mut rs);
                     std::hint::black_box(&out);
                     scored += 1;
                     let applied = view.applied as usize;

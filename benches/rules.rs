@@ -64,12 +64,12 @@ fn bench(c: &mut Criterion) {
 
     // Paired: the passes alternate (model only, the same through the decider
     // with no rules, 200 rules), so a change in machine load hits all alike;
-    // criterion below measures one after the other.
+    // criterion below measures one after the other. The first round warms up.
     {
         let (mut asc, mut bag, mut ds) = (AnalyzerScratch::default(), TermBag::new(), DecideScratch::default());
         let (mut s0, mut s1) = (BlendScratch::default(), BlendScratch::default());
         let mut t: [Vec<f64>; 3] = Default::default();
-        for round in 0..41 {
+        for round in 0..61 {
             let mut time = |i: usize, f: &mut dyn FnMut() -> usize| {
                 let start = Instant::now();
                 black_box(f());
@@ -77,9 +77,14 @@ fn bench(c: &mut Criterion) {
                     t[i].push(start.elapsed().as_secs_f64() * 1e3);
                 }
             };
-            time(0, &mut || model_pass(&mut asc, &mut bag, &mut ds));
-            time(1, &mut || blend_pass(None, &mut s0));
-            time(2, &mut || blend_pass(Some(&set), &mut s1));
+            // The order rotates, so no pass always follows the same one.
+            for k in 0..3 {
+                match (round + k) % 3 {
+                    0 => time(0, &mut || model_pass(&mut asc, &mut bag, &mut ds)),
+                    1 => time(1, &mut || blend_pass(None, &mut s0)),
+                    _ => time(2, &mut || blend_pass(Some(&set), &mut s1)),
+                }
+            }
         }
         let m: Vec<f64> = t
             .iter_mut()
@@ -89,7 +94,7 @@ fn bench(c: &mut Criterion) {
             })
             .collect();
         eprintln!(
-            "paired, 40 alternating rounds, median ms per pass: model only {:.2}, via the decider without rules {:.2} ({:.3}x), 200 rules {:.2}; rules/model throughput {:.3}",
+            "paired, 60 rounds in rotating order, median ms per pass: model only {:.2}, via the decider without rules {:.2} ({:.3}x), 200 rules {:.2}; rules/model throughput {:.3}",
             m[0],
             m[1],
             m[0] / m[1],

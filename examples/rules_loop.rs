@@ -1,4 +1,4 @@
-//! Profiling aid for the rules bench: the Banking77 test records (Casanueva et al. 2020, CC BY 4.0) analyzed and decided R times (argv 1, default 3), model only or with the 200 generated rules of `benches/rules.rs` (argv 2: `setup`, `model`, `rules`, `match`; `pair` times model and rules passes alternately). Run under `valgrind --tool=callgrind` (`scripts/profile-rules.sh`) for instruction counts that do not depend on machine load.
+//! Profiling aid for the rules bench: the Banking77 test records (Casanueva et al. 2020, CC BY 4.0) analyzed and decided R times (argv 1, default 3), model only or with the 200 generated rules of `benches/rules.rs` (argv 2: `setup`, `model`, `norules` (the decider without rules), `rules`, `match`; `pair` times model and rules passes alternately). Run under `valgrind --tool=callgrind` (`scripts/profile-rules.sh`) for instruction counts that do not depend on machine load.
 
 #[path = "../benches/support/rules_gen.rs"]
 mod rules_gen;
@@ -88,6 +88,7 @@ fn main() {
                     analyzer.analyze_fields([(text.as_str(), 1.0)], &mut asc, &mut bag);
                     acc += decide_by_model(&model, "v", None, &bag, &policy, 3, &mut ds).0.class.len();
                 }
+                "norules" => acc += decider.decide(&analyzer, None, Some(&model), "v", None, &f, &mut s).class.len(),
                 "match" => {
                     s.terms.analyze(&analyzer, &f, &mut s.analyzer);
                     acc += set.matches(&s.terms, &f, &mut s.work.rules).len();
