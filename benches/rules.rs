@@ -62,34 +62,44 @@ fn bench(c: &mut Criterion) {
         k
     };
 
-    // Paired: the two passes alternate, so a change in machine load hits both
-    // alike (criterion below measures one after the other).
+    // Paired: the passes alternate (model only, the same through the decider
+    // with no rules, 200 rules), so a change in machine load hits all alike;
+    // criterion below measures one after the other. The first round warms up.
     {
-        let (mut asc, mut bag, mut ds, mut s) =
-            (AnalyzerScratch::default(), TermBag::new(), DecideScratch::default(), BlendScratch::default());
-        let (mut a, mut b) = (Vec::new(), Vec::new());
-        for round in 0..41 {
-            let t = Instant::now();
-            black_box(model_pass(&mut asc, &mut bag, &mut ds));
-            let ta = t.elapsed().as_secs_f64();
-            let t = Instant::now();
-            black_box(blend_pass(Some(&set), &mut s));
-            let tb = t.elapsed().as_secs_f64();
-            if round > 0 {
-                a.push(ta);
-                b.push(tb);
+        let (mut asc, mut bag, mut ds) = (AnalyzerScratch::default(), TermBag::new(), DecideScratch::default());
+        let (mut s0, mut s1) = (BlendScratch::default(), BlendScratch::default());
+        let mut t: [Vec<f64>; 3] = Default::default();
+        for round in 0..61 {
+            let mut time = |i: usize, f: &mut dyn FnMut() -> usize| {
+                let start = Instant::now();
+                black_box(f());
+                if round > 0 {
+                    t[i].push(start.elapsed().as_secs_f64() * 1e3);
+                }
+            };
+            // The order rotates, so no pass always follows the same one.
+            for k in 0..3 {
+                match (round + k) % 3 {
+                    0 => time(0, &mut || model_pass(&mut asc, &mut bag, &mut ds)),
+                    1 => time(1, &mut || blend_pass(None, &mut s0)),
+                    _ => time(2, &mut || blend_pass(Some(&set), &mut s1)),
+                }
             }
         }
-        let median = |v: &mut Vec<f64>| {
-            v.sort_by(f64::total_cmp);
-            v[v.len() / 2]
-        };
-        let (ma, mb) = (median(&mut a), median(&mut b));
+        let m: Vec<f64> = t
+            .iter_mut()
+            .map(|v| {
+                v.sort_by(f64::total_cmp);
+                v[v.len() / 2]
+            })
+            .collect();
         eprintln!(
-            "paired, 40 alternating passes: model only {:.2} ms, 200 rules {:.2} ms per pass; rules/model throughput {:.3}",
-            ma * 1e3,
-            mb * 1e3,
-            ma / mb
+            "paired, 60 rounds in rotating order, median ms per pass: model only {:.2}, via the decider without rules {:.2} ({:.3}x), 200 rules {:.2}; rules/model throughput {:.3}",
+            m[0],
+            m[1],
+            m[0] / m[1],
+            m[2],
+            m[0] / m[2]
         );
     }
 

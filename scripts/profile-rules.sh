@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Instruction counts per record (valgrind callgrind, independent of machine load) for the rules
-# bench's workload: Banking77 test records, model only against the 200 generated rules
-# (model_first), and the matcher alone. Needs the data (SIEVELINE_DATA_DIR, default ../shared/data).
+# bench's workload: Banking77 test records, model only (also through the decider with no
+# rules) against the 200 generated rules (model_first), and the matcher alone. Needs the
+# data (SIEVELINE_DATA_DIR, default ../shared/data).
 # With --annotate MODE, also prints the functions that cost most in that mode.
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -12,7 +13,7 @@ tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 base=$(count setup "$tmp/setup.out")
 records=$((rounds * 3080))
-for mode in model rules match; do
+for mode in model norules rules match; do
   total=$(count "$mode" "$tmp/$mode.out")
   echo "$mode: $(( (total - base) / records )) instructions per record"
 done

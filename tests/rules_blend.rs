@@ -242,3 +242,56 @@ fn without_rules_the_blend_equals_the_model_decision() {
         assert_eq!(a, b, "{text}");
     }
 }
+
+#[test]
+fn one_scratch_follows_swapped_models_and_rule_sets() {
+    // A worker's scratch caches which model class a rule's class is. A model
+    // with the same classes in another order, a model without the class, and
+    // another rule set must each be read afresh.
+    let f = fixture();
+    let d = decider(BlendMode::ModelFirst);
+    let fields = [FieldText { field: 0, text: "parcel", weight: 1.0 }];
+    let mut s = BlendScratch::default();
+    let mut go = |rules: &RuleSet, m: &Model| d.decide(&f.analyzer, Some(rules), Some(m), "v", None, &fields, &mut s);
+    let m = model(5);
+    let x = go(&f.rules, &m);
+    assert_eq!(x.class, "shipping");
+    // The same counts with the classes in the other order: the boost follows "shipping".
+    let mut swapped = m.clone();
+    swapped.reorder_classes(&["shipping".to_string(), "billing".to_string()]).unwrap();
+    let y = go(&f.rules, &swapped);
+    assert_eq!(y.class, "shipping");
+    assert!((y.confidence - x.confidence).abs() < 1e-12, "{} vs {}", y.confidence, x.confidence);
+    // A model without the rule's class: no boost, and no stale index.
+    let mut other = Model::new(
+        NbParams::multinomial(1.0),
+        Settings::defaults().analyzer,
+        vec!["billing".into(), "returns".into()],
+        Vocabulary::new(VocabularyKind::Interned, 1000, 0),
+    )
+    .unwrap();
+    for _ in 0..5 {
+        other.learn(&TermBag::from_pairs([("parcel", 1.0), ("label", 1.0)]), "returns", 1.0).unwrap();
+        other.learn(&TermBag::from_pairs([("card", 1.0)]), "billing", 1.0).unwrap();
+    }
+    let z = go(&f.rules, &other);
+    assert_eq!((z.class.as_str(), &z.decided_by), ("returns", &DecidedBy::Model));
+    let unboosted = {
+        let mut bag = TermBag::new();
+        f.analyzer.analyze_fields([("parcel", 1.0)], &mut Default::default(), &mut bag);
+        other.score(&bag, &mut ScoreScratch::default()).confidence
+    };
+    assert!((z.confidence - (unboosted * 1e9).round() / 1e9).abs() < 1e-12, "nothing was boosted");
+    // Another rule set whose class list starts with "shipping": indexes differ from the first set's.
+    let second = rules::from_str(
+        "[[rule]]\nid = \"parcel-to-billing\"\nclass = \"billing\"\naction = \"boost\"\nlog_odds = 40.0\n[[rule.when]]\nany = [\"parcel\"]\n",
+        "second.toml",
+        &f.analyzer,
+        &["body".to_string()],
+    )
+    .unwrap();
+    let w = go(&second, &m);
+    assert_eq!((w.class.as_str(), &w.decided_by), ("billing", &rule("parcel-to-billing")));
+    let v = go(&f.rules, &m);
+    assert_eq!(v, x, "back to the first pair: the same decision as at first");
+}

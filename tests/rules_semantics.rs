@@ -167,6 +167,32 @@ fn fired_rules_come_in_precedence_order() {
 }
 
 #[test]
+fn precedence_holds_in_small_and_large_rule_sets() {
+    // Small sets order fired rules with a bitmap by rank, sets over 4096 rules
+    // by a sort; both must give the explainer's order. Priorities run against
+    // file order, so precedence and file order differ.
+    // Letters only, so no term looks like a code the analyzer collapses.
+    let word = |i: usize| -> String { format!("w{}{}{}", (b'a' + (i / 676) as u8) as char, (b'a' + (i / 26 % 26) as u8) as char, (b'a' + (i % 26) as u8) as char) };
+    for n in [40usize, 4100] {
+        let mut text = String::new();
+        for i in 0..n {
+            let priority = (i % 7) as i32 - 3;
+            let common = if i % 10 == 3 { "shared" } else { "other" };
+            text += &format!(
+                "[[rule]]\nid = \"r{i}\"\nclass = \"x\"\naction = \"assign\"\npriority = {priority}\n[[rule.when]]\nany = [\"{common}\", \"{}\"]\n",
+                word(i)
+            );
+        }
+        let set = compile_with(&text, &analyzer());
+        let record = format!("shared {} {} {} {} {} {}", word(0), word(1), word(2), word(9), word(17), word(3999));
+        let fired = fire(&set, &[("body", &record)]);
+        let mut want: Vec<usize> = (0..n).filter(|i| i % 10 == 3 || [0, 1, 2, 9, 17, 3999].contains(i)).collect();
+        want.sort_by_key(|&i| (-((i % 7) as i32 - 3), i));
+        assert_eq!(fired, want.iter().map(|i| format!("r{i}")).collect::<Vec<_>>(), "{n} rules");
+    }
+}
+
+#[test]
 fn one_term_in_many_rules_is_one_index_entry() {
     let mut text = String::new();
     for i in 0..50 {

@@ -41,6 +41,16 @@ pub struct Model {
     pub(crate) logw: Vec<f64>,
     pub(crate) norm: Vec<f64>,
     pub(crate) log_prior: Vec<f64>,
+    /// Identifies the class list: two models with the same id have the same
+    /// classes in the same order (a clone keeps it; changing the classes
+    /// takes a fresh one). Lets callers cache class lookups without comparing names.
+    pub(crate) classes_id: u64,
+}
+
+/// A fresh `classes_id`, never handed out before in this process.
+fn next_classes_id() -> u64 {
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(1);
+    NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
 }
 
 /// What one `learn` did.
@@ -84,6 +94,7 @@ impl Model {
             logw: Vec::new(),
             norm: Vec::new(),
             log_prior: Vec::new(),
+            classes_id: next_classes_id(),
         };
         m.rebuild_cache();
         Ok(m)
@@ -113,6 +124,11 @@ impl Model {
 
     pub fn class_index(&self, class: &str) -> Option<usize> {
         self.classes.iter().position(|c| c == class)
+    }
+
+    /// Equal for two models only if they have the same classes in the same order.
+    pub fn classes_id(&self) -> u64 {
+        self.classes_id
     }
 
     pub fn params(&self) -> &NbParams {
@@ -248,6 +264,7 @@ impl Model {
         }
         self.counts = counts;
         self.classes.push(class.to_string());
+        self.classes_id = next_classes_id();
         self.class_totals.push(0.0);
         self.doc_counts.push(0.0);
         self.k += 1;
@@ -276,6 +293,7 @@ impl Model {
         self.doc_counts = map.iter().map(|&o| self.doc_counts[o]).collect();
         self.class_totals = map.iter().map(|&o| self.class_totals[o]).collect();
         self.classes = order.to_vec();
+        self.classes_id = next_classes_id();
         self.rebuild_cache();
         Ok(())
     }

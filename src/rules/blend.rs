@@ -23,7 +23,7 @@ use crate::text::{Analyzer, AnalyzerScratch};
 
 use super::matcher::MatchScratch;
 use super::record::{FieldText, RecordTerms};
-use super::ruleset::{Action, Rule, RuleSet};
+use super::ruleset::{Kind, Rule, RuleSet};
 
 /// How decisions are made: the blend mode and the review policy, from settings.
 /// It holds no rules and no model; the caller passes the current view of each,
@@ -51,8 +51,10 @@ pub struct DecideWork {
     pub rules: MatchScratch,
     /// After a model decision: the per-class log scores with boosts added.
     pub score: ScoreScratch,
-    /// Rule-set class index → model class index (checked before use).
+    /// Rule-set class index → model class index, for the rule set and model
+    /// whose class lists `class_map_key` names.
     class_map: Vec<u32>,
+    class_map_key: (u64, u64),
     /// The fired rules of the last record, resolved, in precedence order.
     pub fired: Vec<Fired>,
     /// Per boosted model class: the summed boost and its exponential.
@@ -60,6 +62,10 @@ pub struct DecideWork {
     /// The model's own score of the last record (before boosts), when the model
     /// scored it; `score.hits` then holds the rows it found (drift statistics).
     pub model_scored: Option<Scored>,
+    /// Per model class: 1 + its index in `deltas` this record, or 0.
+    delta_slot: Vec<u32>,
+    /// (assign_boost, exp(assign_boost)) last used.
+    assign_exp: (f64, f64),
 }
 
 impl Decider {
@@ -104,40 +110,58 @@ impl Decider {
         w: &mut DecideWork,
     ) -> Decision {
         let usable = model.filter(|m| !m.is_empty());
-        let DecideWork { rules: ms, score, class_map, fired: info, deltas, model_scored } = w;
+        let DecideWork { rules: ms, score, class_map, class_map_key, fired: info, deltas, delta_slot, assign_exp, model_scored } = w;
         info.clear();
         *model_scored = None;
         // One pass over the fired rules, in precedence order: resolve each once
-        // (its class in the model, whether it is active) and note the first
-        // active review rule, the first guard that assigns and the first active
-        // assign rule.
+        // from the set's compact per-rule data (its boost, its class in the
+        // model when a boost or takeover needs it, whether it is active) and
+        // note the first active review rule, the first guard that assigns and
+        // the first active assign rule.
         let mut review_rule: Option<&Rule> = None;
         let mut guard_assign: Option<&Rule> = None;
         let mut first_assign: Option<&Rule> = None;
         if let Some(set) = rules.filter(|r| !r.is_empty()) {
+            if let Some(m) = usable {
+                // The cache holds for one pair of class lists; another pair starts it afresh.
+                let key = (set.classes_id, m.classes_id());
+                if *class_map_key != key {
+                    class_map.clear();
+                    class_map.resize(set.classes().len(), NOT_CACHED);
+                    *class_map_key = key;
+                }
+            }
+            let takeover = self.blend == BlendMode::Takeover;
+            // model_first turns non-guard assign rules into boosts of assign_boost.
+            let (assign_boost, assign_factor) = if self.blend == BlendMode::ModelFirst {
+                if assign_exp.0 != self.assign_boost {
+                    *assign_exp = (self.assign_boost, self.assign_boost.exp());
+                }
+                *assign_exp
+            } else {
+                (0.0, 1.0)
+            };
             for &i in set.matches(terms, fields, ms) {
-                let r = set.rule(i);
-                // The model's class index matters for boosts and for takeover.
-                let needs_class = self.blend == BlendMode::Takeover || self.boost_of(r) != 0.0;
-                let class = usable.filter(|_| needs_class).and_then(|m| model_class(class_map, m, r));
-                let active = r.guard
-                    || self.blend != BlendMode::Takeover
-                    || class.map_or(0.0, |c| usable.expect("class implies model").doc_counts()[c])
-                        < self.takeover_labels;
-                info.push(Fired { rule: i, class, active });
-                match r.action {
-                    Action::Review if active => {
-                        review_rule.get_or_insert(r);
-                    }
-                    Action::Assign => {
-                        if r.guard {
-                            guard_assign.get_or_insert(r);
-                        }
-                        if active {
-                            first_assign.get_or_insert(r);
-                        }
-                    }
-                    _ => {}
+                let h = set.meta(i);
+                // Arithmetic rather than branches on the rule's kind: they are
+                // data-dependent and would be mispredicted.
+                let w = f64::from(u8::from(h.nonguard_assign));
+                let amount = h.log_odds + w * assign_boost;
+                let factor = h.factor * (1.0 + w * (assign_factor - 1.0));
+                let class = usable.and_then(|m| model_class(class_map, m, h.class_idx, set.class_name(h.class_idx)));
+                let active = h.guard
+                    || !takeover
+                    || class.map_or(0.0, |c| usable.expect("class implies model").doc_counts()[c]) < self.takeover_labels;
+                info.push(Fired { rule: i, class, active, amount, factor });
+                let assign = h.kind == Kind::Assign;
+                if h.kind == Kind::Review && active && review_rule.is_none() {
+                    review_rule = Some(set.rule(i));
+                }
+                if assign && h.guard && guard_assign.is_none() {
+                    guard_assign = Some(set.rule(i));
+                }
+                if assign && active && first_assign.is_none() {
+                    first_assign = Some(set.rule(i));
                 }
             }
         }
@@ -184,30 +208,32 @@ impl Decider {
             *model_scored = Some(base);
             let mut scored = base;
             deltas.clear();
-            let mut assign_factor = None;
-            for f in info.iter().filter(|f| f.active) {
-                let r = rule(f.rule);
-                let amount = self.boost_of(r);
-                if let (Some(c), true) = (f.class, amount != 0.0) {
-                    // exp(amount), precomputed for boost rules, once per record for assign_boost.
-                    let factor = match r.action {
-                        Action::Boost(_) => r.boost_factor,
-                        _ => *assign_factor.get_or_insert_with(|| self.assign_boost.exp()),
-                    };
-                    match deltas.iter_mut().find(|d| d.class == c) {
-                        Some(d) => {
-                            d.amount += amount;
-                            d.factor *= factor;
+            if delta_slot.len() < m.classes().len() {
+                delta_slot.resize(m.classes().len(), 0);
+            }
+            for f in info.iter().filter(|f| f.active && f.amount != 0.0) {
+                if let Some(c) = f.class {
+                    match delta_slot[c] {
+                        0 => {
+                            deltas.push(Delta { class: c, amount: f.amount, factor: f.factor });
+                            delta_slot[c] = deltas.len() as u32;
                         }
-                        None => deltas.push(Delta { class: c, amount, factor }),
+                        k => {
+                            let d = &mut deltas[k as usize - 1];
+                            d.amount += f.amount;
+                            d.factor *= f.factor;
+                        }
                     }
                 }
+            }
+            for d in deltas.iter() {
+                delta_slot[d.class] = 0;
             }
             let mut decided_by = DecidedBy::Model;
             if !deltas.is_empty() {
                 scored = rescore(&mut score.scores, deltas, base);
                 if scored.best != base.best {
-                    if let Some(i) = self.credit(info, &rule, scored.best, base.best) {
+                    if let Some(i) = Self::credit(info, scored.best, base.best) {
                         decided_by = DecidedBy::Rule(rule(i).id.clone());
                     }
                 }
@@ -245,22 +271,13 @@ impl Decider {
         }
     }
 
-    /// The log-odds a fired, active rule adds to the model's score of its class.
-    fn boost_of(&self, r: &Rule) -> f64 {
-        match (r.action, self.blend) {
-            (Action::Boost(x), _) => x,
-            (Action::Assign, BlendMode::ModelFirst) if !r.guard => self.assign_boost,
-            _ => 0.0,
-        }
-    }
-
     /// The rule that moved the winner: the largest boost to the new winner, else
     /// the largest penalty on the old one.
-    fn credit<'r>(&self, info: &[Fired], rule: &dyn Fn(u32) -> &'r Rule, best: usize, old: usize) -> Option<u32> {
+    fn credit(info: &[Fired], best: usize, old: usize) -> Option<u32> {
         let mut up: Option<(u32, f64)> = None;
         let mut down: Option<(u32, f64)> = None;
         for f in info.iter().filter(|f| f.active) {
-            let x = self.boost_of(rule(f.rule));
+            let x = f.amount;
             match f.class {
                 Some(c) if c == best && x > 0.0 && up.is_none_or(|(_, y)| x > y) => up = Some((f.rule, x)),
                 Some(c) if c == old && x < 0.0 && down.is_none_or(|(_, y)| x < y) => down = Some((f.rule, x)),
@@ -275,32 +292,34 @@ impl Decider {
 #[derive(Debug, Clone, Copy)]
 pub struct Fired {
     pub rule: u32,
-    /// The rule's class in the model, if the model has it and the blend needs
-    /// it (the rule boosts, or the mode is `takeover`).
+    /// The rule's class in the model, if there is a usable model and it has the class.
     pub class: Option<usize>,
     /// False for a non-guard rule whose class the model has taken over.
     pub active: bool,
+    /// The log-odds it adds to its class's score (0 if none), and exp of that.
+    pub amount: f64,
+    pub factor: f64,
 }
 
 const NOT_CACHED: u32 = u32::MAX;
+const NOT_IN_MODEL: u32 = u32::MAX - 1;
 
-/// The model's index of a rule's class, through a per-worker cache keyed by the
-/// rule set's class index. A cached index is used only after checking that the
-/// model's class at it is the rule's class (one string compare), so a swapped
-/// model or rule set can never give a stale answer; a miss falls back to the
-/// model's linear search and refreshes the cache.
-fn model_class(cache: &mut Vec<u32>, m: &Model, r: &Rule) -> Option<usize> {
-    let ci = r.class_idx as usize;
-    if cache.len() <= ci {
-        cache.resize(ci + 1, NOT_CACHED);
+/// The model's index of a rule's class, through a per-worker cache indexed by
+/// the rule set's class index. The caller keys the cache by the identities of
+/// both class lists (`RuleSet::classes_id`, `Model::classes_id`) and starts it
+/// afresh when either changes, so a cached answer (found or absent) is never
+/// stale and needs no name comparison; a miss searches the model's classes.
+fn model_class(cache: &mut [u32], m: &Model, class_idx: u32, class: &str) -> Option<usize> {
+    let slot = &mut cache[class_idx as usize];
+    match *slot {
+        NOT_CACHED => {
+            let found = m.class_index(class);
+            *slot = found.map_or(NOT_IN_MODEL, |x| x as u32);
+            found
+        }
+        NOT_IN_MODEL => None,
+        c => Some(c as usize),
     }
-    let c = cache[ci];
-    if c != NOT_CACHED && m.classes().get(c as usize).is_some_and(|x| *x == r.class) {
-        return Some(c as usize);
-    }
-    let found = m.class_index(&r.class);
-    cache[ci] = found.map_or(NOT_CACHED, |x| x as u32);
-    found
 }
 
 /// The boosts of one class: summed log-odds and their exponential.

@@ -7,7 +7,8 @@ use rustc_hash::FxHashMap;
 
 use super::error::{Problem, RulesError};
 use super::format::{line_of, rule_id_at, RawFile, RawRule, RawWhen};
-use super::ruleset::{Action, Cond, CondKind, Item, Posting, Rule, RuleSet, ANY_FIELD};
+use super::index::TermIndex;
+use super::ruleset::{Action, Cond, CondKind, Item, Posting, Rule, RuleMeta, RuleSet, ANY_FIELD};
 use crate::settings::AnalyzerSettings;
 use crate::text::{Analyzer, AnalyzerScratch, TermBag};
 
@@ -61,6 +62,8 @@ pub fn compile(text: &str, source: &str, analyzer: &Analyzer, fields: &[String])
 
 struct Builder<'a> {
     text: &'a str,
+    /// Byte offsets of the text's newlines.
+    newlines: Vec<usize>,
     analyzer: &'a Analyzer,
     fields: &'a [String],
     problems: Vec<Problem>,
@@ -77,6 +80,7 @@ impl<'a> Builder<'a> {
     fn new(text: &'a str, analyzer: &'a Analyzer, fields: &'a [String]) -> Self {
         Builder {
             text,
+            newlines: text.bytes().enumerate().filter(|&(_, b)| b == b'\n').map(|(i, _)| i).collect(),
             analyzer,
             fields,
             problems: Vec::new(),
@@ -90,8 +94,11 @@ impl<'a> Builder<'a> {
         }
     }
 
+    /// `format::line_of`, by binary search over the newlines found once (a
+    /// scan per call would make compiling a large file quadratic).
     fn line(&self, offset: usize) -> usize {
-        line_of(self.text, offset)
+        let offset = offset.min(self.text.len());
+        self.newlines.partition_point(|&p| p < offset) + 1
     }
 
     fn problem(&mut self, line: usize, rule: Option<&str>, message: String) {
@@ -188,15 +195,10 @@ impl<'a> Builder<'a> {
                 "the rule has only `none` conditions, so it would fire on almost every record; add an `any`, `all` or `regex`".into(),
             );
         }
-        let action = action.unwrap_or(Action::Assign);
         self.rules.push(Rule {
             id: id.to_string(),
             class: class.to_string(),
-            action,
-            boost_factor: match action {
-                Action::Boost(x) => x.exp(),
-                _ => 1.0,
-            },
+            action: action.unwrap_or(Action::Assign),
             priority,
             guard: r.guard.as_ref().is_some_and(|g| *g.get_ref()),
             note: r.note.as_ref().map(|n| n.get_ref().clone()),
@@ -399,13 +401,13 @@ impl<'a> Builder<'a> {
         }
         let mut keys: Vec<Box<str>> = by_token.keys().cloned().collect();
         keys.sort();
-        let mut index = FxHashMap::default();
+        let mut index = TermIndex::default();
         let mut postings = Vec::with_capacity(items.len());
         for k in keys {
             let v = by_token.remove(&k).expect("key listed");
             let start = postings.len() as u32;
             postings.extend(v);
-            index.insert(k, (start, postings.len() as u32));
+            index.insert(&k, (start, postings.len() as u32));
         }
         // A regex in a rule that also has an `any` or `all` condition is checked
         // only for candidates whose other conditions hold (cheap tests first);
@@ -462,12 +464,18 @@ impl<'a> Builder<'a> {
         for r in &mut rules {
             r.class_idx = classes.binary_search(&r.class).expect("collected") as u32;
         }
+        let meta = rules
+            .iter()
+            .enumerate()
+            .map(|(i, r)| RuleMeta::new(r, rule_need[i], rank[i], has_deferred[i]))
+            .collect();
         RuleSet {
             source: source.to_string(),
             fingerprint: blake3::hash(text.as_bytes()).to_hex()[..16].to_string(),
             analyzer_fingerprint: analyzer.fingerprint().to_string(),
             fields: fields.to_vec(),
             rules,
+            meta,
             conds,
             items,
             index,
@@ -476,10 +484,10 @@ impl<'a> Builder<'a> {
             regexes,
             regex_conds,
             deferred,
-            has_deferred,
-            rule_need,
             rank,
+            by_rank: order,
             classes,
+            classes_id: super::ruleset::next_classes_id(),
         }
     }
 }

@@ -10,26 +10,40 @@
 //! bumping an epoch, not by clearing arrays sized by the rule set.
 
 use super::record::{FieldText, RecordTerms};
-use super::ruleset::{Cond, RuleSet, ANY_FIELD};
+use super::ruleset::{Cond, RuleMeta, RuleSet, ANY_FIELD};
+
+/// Rule sets up to this size order fired rules with a bitmap by rank (read
+/// whole per record); larger ones sort the few fired rules instead.
+const RANK_BITS_MAX: usize = 4096;
+
+/// Per-record state of one rule.
+#[derive(Debug, Default, Clone, Copy)]
+struct RuleState {
+    /// Epoch in which `met` was last written.
+    mark: u32,
+    /// Counted conditions that hold so far (this epoch).
+    met: u32,
+    /// Epoch in which a `none` condition of the rule was hit.
+    blocked: u32,
+}
 
 /// Reusable per-worker buffers for `RuleSet::matches`.
 #[derive(Debug, Default, Clone)]
 pub struct MatchScratch {
     epoch: u32,
     item_mark: Vec<u32>,
-    cond_mark: Vec<u32>,
-    cond_hits: Vec<u32>,
-    /// Epoch in which `rule_met` was last written, per rule.
-    rule_mark: Vec<u32>,
-    /// Conditions of the rule that hold so far (this epoch).
-    rule_met: Vec<u32>,
-    /// Epoch in which a `none` condition of the rule was hit.
-    rule_blocked: Vec<u32>,
+    /// Per condition: (epoch of `hits`, hits this record).
+    conds: Vec<(u32, u32)>,
+    /// Per rule, in one record so a hit touches one place.
+    rules: Vec<RuleState>,
     /// Rules whose counted conditions all hold.
     complete: Vec<u32>,
     words: Vec<u32>,
-    /// Fired rules as `rank << 32 | rule`, sorted into precedence order.
+    /// Fired rules as `rank << 32 | rule`, sorted into precedence order (large sets).
     keyed: Vec<u64>,
+    /// Fired rules as bits by precedence rank, read in order (sets up to
+    /// `RANK_BITS_MAX` rules); all zero between records.
+    ranked: Vec<u64>,
     /// The rules that fired on the last record, in precedence order.
     pub fired: Vec<u32>,
 }
@@ -40,20 +54,19 @@ impl MatchScratch {
         if self.item_mark.len() < ni {
             self.item_mark.resize(ni, 0);
         }
-        if self.cond_mark.len() < nc {
-            self.cond_mark.resize(nc, 0);
-            self.cond_hits.resize(nc, 0);
+        if self.conds.len() < nc {
+            self.conds.resize(nc, (0, 0));
         }
-        if self.rule_mark.len() < nr {
-            self.rule_mark.resize(nr, 0);
-            self.rule_met.resize(nr, 0);
-            self.rule_blocked.resize(nr, 0);
+        if self.ranked.len() < nr.div_ceil(64) {
+            self.ranked.resize(nr.div_ceil(64), 0);
+        }
+        if self.rules.len() < nr {
+            self.rules.resize(nr, RuleState::default());
         }
         if self.epoch == u32::MAX {
             self.item_mark.fill(0);
-            self.cond_mark.fill(0);
-            self.rule_mark.fill(0);
-            self.rule_blocked.fill(0);
+            self.conds.fill((0, 0));
+            self.rules.fill(RuleState::default());
             self.epoch = 0;
         }
         // Marks only ever hold past epochs, so a larger epoch clears them all
@@ -64,24 +77,21 @@ impl MatchScratch {
     }
 
     /// `by` more hits for condition `cond` of `rule`, which needs `need` of
-    /// them (0 for a `none` condition); the rule counts `rule_need` conditions.
+    /// them (0 for a `none` condition); `meta` says how many the rule counts.
     #[inline(always)]
-    fn hit(&mut self, cond: u32, rule: u32, by: u32, need: u32, rule_need: &[u32]) {
-        let (c, r) = (cond as usize, rule as usize);
-        let before = if self.cond_mark[c] == self.epoch {
-            self.cond_hits[c]
-        } else {
-            self.cond_mark[c] = self.epoch;
-            0
-        };
-        self.cond_hits[c] = before + by;
+    fn hit(&mut self, cond: u32, rule: u32, by: u32, need: u32, meta: &[RuleMeta]) {
+        let epoch = self.epoch;
+        let c = &mut self.conds[cond as usize];
+        let before = if c.0 == epoch { c.1 } else { 0 };
+        *c = (epoch, before + by);
+        let r = &mut self.rules[rule as usize];
         if need == 0 {
-            self.rule_blocked[r] = self.epoch;
+            r.blocked = epoch;
         } else if before < need && before + by >= need {
-            let met = if self.rule_mark[r] == self.epoch { self.rule_met[r] + 1 } else { 1 };
-            self.rule_mark[r] = self.epoch;
-            self.rule_met[r] = met;
-            if met == rule_need[r] {
+            let met = if r.mark == epoch { r.met + 1 } else { 1 };
+            r.mark = epoch;
+            r.met = met;
+            if met == meta[rule as usize].need {
                 self.complete.push(rule);
             }
         }
@@ -128,33 +138,51 @@ impl RuleSet {
                     }
                     let re = &self.regexes[c.regex.expect("regex condition") as usize];
                     let n = if c.at_least > 1 { re.find_iter(f.text).count() as u32 } else { 1 };
-                    s.hit(ci, c.rule, n, c.at_least, &self.rule_need);
+                    s.hit(ci, c.rule, n, c.at_least, &self.meta);
                 }
             }
         }
         // Candidates: every counted condition holds. Left to check: no `none`
-        // condition was hit, and deferred regexes. Fired rules are keyed by
-        // precedence rank, so one sort of integers orders them.
+        // condition was hit, and deferred regexes. Fired rules are put in
+        // precedence order by their rank: as bits of a bitmap read in order,
+        // or, for large sets, by one sort of integer keys.
+        let bitmap = self.rules.len() <= RANK_BITS_MAX;
         s.keyed.clear();
         for k in 0..s.complete.len() {
             let r = s.complete[k];
-            if s.rule_blocked[r as usize] == s.epoch {
+            if s.rules[r as usize].blocked == s.epoch {
                 continue;
             }
+            let meta = &self.meta[r as usize];
             let rule = &self.rules[r as usize];
             let range = rule.conds.start as usize..rule.conds.end as usize;
-            let ok = !self.has_deferred[r as usize]
+            let ok = !meta.has_deferred
                 || self.conds[range.clone()]
                     .iter()
                     .zip(&self.deferred[range])
                     .filter(|(_, &d)| d)
                     .all(|(c, _)| self.regex_holds(c, texts));
             if ok {
-                s.keyed.push(u64::from(self.rank[r as usize]) << 32 | u64::from(r));
+                let rank = meta.rank;
+                if bitmap {
+                    s.ranked[rank as usize / 64] |= 1 << (rank % 64);
+                } else {
+                    s.keyed.push(u64::from(rank) << 32 | u64::from(r));
+                }
             }
         }
-        s.keyed.sort_unstable();
-        s.fired.extend(s.keyed.iter().map(|&k| k as u32));
+        if bitmap {
+            for (wi, word) in s.ranked[..self.rules.len().div_ceil(64)].iter_mut().enumerate() {
+                let mut w = std::mem::take(word);
+                while w != 0 {
+                    s.fired.push(self.by_rank[wi * 64 + w.trailing_zeros() as usize]);
+                    w &= w - 1;
+                }
+            }
+        } else {
+            s.keyed.sort_unstable();
+            s.fired.extend(s.keyed.iter().map(|&k| k as u32));
+        }
         &s.fired
     }
 
@@ -162,7 +190,7 @@ impl RuleSet {
     /// against the following words, `next(j)` being the j-th word after it).
     #[inline]
     fn term_hits<'t>(&self, term: &str, field: u32, s: &mut MatchScratch, next: impl Fn(usize) -> Option<&'t str>) {
-        let Some(&(a, b)) = self.index.get(term) else { return };
+        let Some((a, b)) = self.index.get(term) else { return };
         for post in &self.postings[a as usize..b as usize] {
             if post.field != ANY_FIELD && post.field != field {
                 continue;
@@ -174,7 +202,7 @@ impl RuleSet {
                 continue;
             }
             s.item_mark[post.item as usize] = s.epoch;
-            s.hit(post.cond, post.rule, 1, post.need, &self.rule_need);
+            s.hit(post.cond, post.rule, 1, post.need, &self.meta);
         }
     }
 

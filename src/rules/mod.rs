@@ -3,6 +3,7 @@
 //! - `format`: the file's serde shapes, with spans for line numbers;
 //! - `compile`: validation and compilation into a [`RuleSet`];
 //! - `ruleset`: the immutable compiled set (rules, conditions, term index, regex set);
+//! - `index`: the term index, short terms packed into integer keys;
 //! - `record`: a record's analyzed terms with each field's share, as rules see it;
 //! - `matcher`: the hot path, one index lookup per token;
 //! - `explain`: the slow path, which conditions held and what they found;
@@ -19,6 +20,7 @@ pub mod curve;
 pub mod error;
 pub mod explain;
 mod format;
+mod index;
 pub mod matcher;
 pub mod record;
 pub mod report;

@@ -8,7 +8,8 @@
 use std::ops::Range;
 
 use regex::{Regex, RegexSet};
-use rustc_hash::FxHashMap;
+
+use super::index::TermIndex;
 
 /// What a rule does when it fires.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -54,9 +55,59 @@ pub struct Rule {
     pub(crate) conds: Range<u32>,
     /// Index of `class` in `RuleSet::classes`.
     pub(crate) class_idx: u32,
-    /// exp(log_odds) of a boost (1 for other actions): the blend multiplies
-    /// these instead of taking an exponential per record.
-    pub(crate) boost_factor: f64,
+}
+
+/// The kind of a rule's action, without its payload.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Kind {
+    Assign,
+    Boost,
+    Review,
+}
+
+/// What the matcher and the blend read of a rule, packed in one 32-byte
+/// record beside `rules` (one cache line holds two rules), instead of several
+/// arrays or the whole `Rule` with its strings.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct RuleMeta {
+    /// Conditions counted while matching (every condition but `none` and
+    /// deferred regexes); the rule is a candidate once all hold.
+    pub need: u32,
+    /// Precedence rank (0 first).
+    pub rank: u32,
+    pub class_idx: u32,
+    pub kind: Kind,
+    pub guard: bool,
+    /// Whether it has a regex checked only once its other conditions hold.
+    pub has_deferred: bool,
+    /// A non-guard assign rule: `model_first` turns it into a boost.
+    pub nonguard_assign: bool,
+    /// A boost's log-odds; 0 for other actions.
+    pub log_odds: f64,
+    /// exp(log_odds): the blend multiplies these instead of taking an
+    /// exponential per record; 1 for other actions.
+    pub factor: f64,
+}
+
+impl RuleMeta {
+    pub(crate) fn new(r: &Rule, need: u32, rank: u32, has_deferred: bool) -> RuleMeta {
+        let (kind, log_odds) = match r.action {
+            Action::Assign => (Kind::Assign, 0.0),
+            Action::Boost(x) => (Kind::Boost, x),
+            Action::Review => (Kind::Review, 0.0),
+        };
+        RuleMeta {
+            need,
+            rank,
+            class_idx: r.class_idx,
+            kind,
+            guard: r.guard,
+            has_deferred,
+            nonguard_assign: kind == Kind::Assign && !r.guard,
+            log_odds,
+            factor: log_odds.exp(),
+        }
+    }
 }
 
 /// The kind of one condition.
@@ -130,10 +181,12 @@ pub struct RuleSet {
     pub(crate) analyzer_fingerprint: String,
     pub(crate) fields: Vec<String>,
     pub(crate) rules: Vec<Rule>,
+    /// Per rule, what the matcher and the blend read of it.
+    pub(crate) meta: Vec<RuleMeta>,
     pub(crate) conds: Vec<Cond>,
     pub(crate) items: Vec<Item>,
     /// First token → range of `postings`: the one lookup per record token.
-    pub(crate) index: FxHashMap<Box<str>, (u32, u32)>,
+    pub(crate) index: TermIndex,
     pub(crate) postings: Vec<Posting>,
     /// The regex conditions of rules that have no term condition, in one set
     /// run once per field text: for those rules a regex is what makes them candidates.
@@ -143,14 +196,20 @@ pub struct RuleSet {
     pub(crate) regex_conds: Vec<u32>,
     /// Per condition: a regex checked only once the rule's cheaper conditions hold.
     pub(crate) deferred: Vec<bool>,
-    /// Per rule: whether it has a deferred regex.
-    pub(crate) has_deferred: Vec<bool>,
-    /// Per rule: its conditions counted while matching (every condition but
-    /// `none` and deferred regexes); the rule is a candidate once all hold.
-    pub(crate) rule_need: Vec<u32>,
     /// Precedence rank of each rule (0 first): guards, then priority, then action, then file order.
     pub(crate) rank: Vec<u32>,
+    /// The rules in precedence order (the inverse of `rank`).
+    pub(crate) by_rank: Vec<u32>,
     pub(crate) classes: Vec<String>,
+    /// Identifies `classes` (fresh per compiled set; a clone keeps it), so the
+    /// blend's rule-class → model-class cache can be keyed without names.
+    pub(crate) classes_id: u64,
+}
+
+/// A fresh `RuleSet::classes_id`.
+pub(crate) fn next_classes_id() -> u64 {
+    static NEXT: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(1);
+    NEXT.fetch_add(1, std::sync::atomic::Ordering::Relaxed)
 }
 
 impl RuleSet {
@@ -161,6 +220,17 @@ impl RuleSet {
 
     pub fn rule(&self, i: u32) -> &Rule {
         &self.rules[i as usize]
+    }
+
+    #[inline]
+    pub(crate) fn meta(&self, i: u32) -> &RuleMeta {
+        &self.meta[i as usize]
+    }
+
+    /// The target class with this index in `classes`.
+    #[inline]
+    pub(crate) fn class_name(&self, class_idx: u32) -> &str {
+        &self.classes[class_idx as usize]
     }
 
     pub fn len(&self) -> usize {
