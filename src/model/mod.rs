@@ -2,6 +2,7 @@
 //!
 //! - `params`: checked hyper-parameters (kind, α, priors);
 //! - `nb`: the counts, `learn`/`unlearn`, the row cache of log weights;
+//! - `rows`: per-row storage in small shared leaves, copied on write, so a clone is cheap;
 //! - `score`: joint log likelihoods, log-sum-exp posteriors, margin;
 //! - `explain`: the terms that contributed most to a decision;
 //! - `snapshot`: the versioned, checksummed, atomically written model file.
@@ -9,8 +10,12 @@
 pub mod explain;
 pub mod nb;
 pub mod params;
+pub mod rows;
 pub mod score;
 pub mod snapshot;
+
+#[cfg(test)]
+mod clone_tests;
 
 pub use nb::{LearnOutcome, Model};
 pub use params::NbParams;

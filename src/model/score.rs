@@ -34,23 +34,22 @@ impl Model {
     /// Score a record. Unknown terms are ignored, as a fixed-vocabulary
     /// reference implementation does. Ties go to the lowest class index.
     pub fn score(&self, bag: &TermBag, s: &mut ScoreScratch) -> Scored {
-        let k = self.k;
         s.scores.clear();
         s.scores.extend_from_slice(&self.log_prior);
         s.hits.clear();
-        let interned = matches!(self.vocab, Vocabulary::Interned { .. });
+        let interned = matches!(self.vocab, Vocabulary::Interned(_));
         let mut known_w = 0.0;
         let mut total_w = 0.0;
         for i in 0..bag.len() {
             let (term, w) = bag.get(i);
             total_w += w;
             let Some(id) = self.vocab.lookup(term) else { continue };
-            if interned && self.row_totals[id as usize] == 0.0 {
+            let (row_total, row) = self.cells.weights(id);
+            if interned && row_total == 0.0 {
                 continue;
             }
             known_w += w;
             s.hits.push((id, w, i as u32));
-            let row = &self.logw[id as usize * k..id as usize * k + k];
             for (acc, lw) in s.scores.iter_mut().zip(row) {
                 *acc += w * lw;
             }
