@@ -136,6 +136,8 @@ fn learn_batch(m: &mut Model, names: &[String], classes: &[String], recs: &[Vec<
 }
 
 /// The same amount of data as the model, laid out flat, as the old full copy moved it.
+/// Its fields are only ever copied, never read.
+#[allow(dead_code)]
 #[derive(Clone)]
 struct Flat {
     counts: Vec<f64>,

@@ -1,9 +1,11 @@
 //! The interned vocabulary: a shared, immutable hash index of terms (the base) plus a small index of the terms added since the last compaction (the delta), over chunked term text; cheap to clone.
 //!
-//! Both indexes hold plain `Copy` slots (hash, id, where the text is), never strings,
-//! so cloning the vocabulary copies one pointer for the base, one per text chunk,
-//! and the delta slots. A lookup hashes the term once and probes the base; only a
-//! term the base lacks also probes the delta (skipped when it is empty).
+//! Both indexes hold plain `Copy` slots (hash, id, where the text is, and the
+//! term's first `HEAD` bytes), never strings, so cloning the vocabulary copies one
+//! pointer for the base, one per text chunk, and the delta slots. A lookup hashes
+//! the term once and probes the base; only a term the base lacks also probes the
+//! delta (skipped when it is empty). A term of up to `HEAD` bytes is compared
+//! inside the slot, without reading the term text.
 //! New terms go to the delta. When the delta reaches
 //! `max(DELTA_MIN, base / DELTA_FRACTION)` slots it is folded into a new base:
 //! in place when no clone shares the base, otherwise by building a new one. The
@@ -24,6 +26,9 @@ pub const DELTA_MIN: usize = 1024;
 /// …or, for a larger base, this fraction of the base.
 pub const DELTA_FRACTION: usize = 16;
 
+/// Bytes of a term kept in its slot.
+const HEAD: usize = 12;
+
 #[derive(Clone, Copy)]
 struct Slot {
     hash: u64,
@@ -31,6 +36,38 @@ struct Slot {
     /// Where the term starts in its text chunk, and its length in bytes.
     start: u32,
     len: u32,
+    /// The first `HEAD` bytes, zero-padded.
+    head: [u8; HEAD],
+}
+
+/// What a probe compares slots against, computed once per lookup.
+struct Key<'a> {
+    term: &'a str,
+    hash: u64,
+    head: [u8; HEAD],
+}
+
+impl<'a> Key<'a> {
+    #[inline]
+    fn new(term: &'a str) -> Key<'a> {
+        let mut head = [0u8; HEAD];
+        let n = term.len().min(HEAD);
+        head[..n].copy_from_slice(&term.as_bytes()[..n]);
+        Key { term, hash: FxBuildHasher.hash_one(term), head }
+    }
+
+    #[inline]
+    fn slot(&self, id: u32, start: u32) -> Slot {
+        Slot { hash: self.hash, id, start, len: self.term.len() as u32, head: self.head }
+    }
+
+    #[inline]
+    fn matches(&self, text: &TermText, s: &Slot) -> bool {
+        s.hash == self.hash
+            && s.len as usize == self.term.len()
+            && s.head == self.head
+            && (self.term.len() <= HEAD || text.bytes_at(s.id, s.start, s.len) == self.term.as_bytes())
+    }
 }
 
 /// Exact terms in first-seen order, at most `max` of them.
@@ -41,11 +78,6 @@ pub struct Interned {
     delta: HashTable<Slot>,
     max: usize,
     compactions: u64,
-}
-
-#[inline]
-fn hash(term: &str) -> u64 {
-    FxBuildHasher.hash_one(term)
 }
 
 impl Interned {
@@ -60,12 +92,12 @@ impl Interned {
         let mut base: HashTable<Slot> = HashTable::with_capacity(terms.size_hint().0);
         for t in terms {
             let t = t.as_ref();
-            let h = hash(t);
-            if base.find(h, |s| eq(&text, s, t)).is_some() {
+            let key = Key::new(t);
+            if base.find(key.hash, |s| key.matches(&text, s)).is_some() {
                 return Err(format!("term {t:?} appears twice"));
             }
             let (id, start) = text.push(t).ok_or_else(|| format!("term of {} bytes is too long", t.len()))?;
-            base.insert_unique(h, Slot { hash: h, id, start, len: t.len() as u32 }, |s| s.hash);
+            base.insert_unique(key.hash, key.slot(id, start), |s| s.hash);
         }
         Ok(Interned { text, base: Arc::new(base), delta: HashTable::new(), max, compactions: 0 })
     }
@@ -84,32 +116,32 @@ impl Interned {
 
     #[inline]
     pub fn lookup(&self, term: &str) -> Option<u32> {
-        self.find(hash(term), term)
+        self.find(&Key::new(term))
     }
 
     #[inline]
-    fn find(&self, h: u64, term: &str) -> Option<u32> {
-        if let Some(s) = self.base.find(h, |s| eq(&self.text, s, term)) {
+    fn find(&self, key: &Key<'_>) -> Option<u32> {
+        if let Some(s) = self.base.find(key.hash, |s| key.matches(&self.text, s)) {
             return Some(s.id);
         }
         if self.delta.is_empty() {
             return None;
         }
-        self.delta.find(h, |s| eq(&self.text, s, term)).map(|s| s.id)
+        self.delta.find(key.hash, |s| key.matches(&self.text, s)).map(|s| s.id)
     }
 
     /// The id of `term`, adding it if there is room; `None` when full (or for a
     /// term too long to store, see `TermText::push`).
     pub fn intern(&mut self, term: &str) -> Option<u32> {
-        let h = hash(term);
-        if let Some(id) = self.find(h, term) {
+        let key = Key::new(term);
+        if let Some(id) = self.find(&key) {
             return Some(id);
         }
         if self.text.len() >= self.max {
             return None;
         }
         let (id, start) = self.text.push(term)?;
-        self.delta.insert_unique(h, Slot { hash: h, id, start, len: term.len() as u32 }, |s| s.hash);
+        self.delta.insert_unique(key.hash, key.slot(id, start), |s| s.hash);
         if self.delta.len() >= DELTA_MIN.max(self.base.len() / DELTA_FRACTION) {
             self.compact();
         }
@@ -160,11 +192,6 @@ impl Interned {
     pub fn sharing(&self, other: &Interned) -> (bool, (usize, usize)) {
         (Arc::ptr_eq(&self.base, &other.base), self.text.sharing(&other.text))
     }
-}
-
-#[inline]
-fn eq(text: &TermText, s: &Slot, term: &str) -> bool {
-    s.len as usize == term.len() && text.bytes_at(s.id, s.start, s.len) == term.as_bytes()
 }
 
 impl PartialEq for Interned {
@@ -230,6 +257,23 @@ mod tests {
         assert_eq!(before.lookup("one more"), None);
         assert_eq!(before.delta_len(), DELTA_MIN - 1);
         assert_eq!(v.lookup("one more"), Some(DELTA_MIN as u32 - 1));
+    }
+
+    #[test]
+    fn terms_sharing_their_first_bytes_are_told_apart() {
+        // Lengths around HEAD, a shared head, and zero padding against a real zero byte.
+        let terms = ["", "abc", "abc\0", "abcdefghijkl", "abcdefghijklm", "abcdefghijklx", "abcdefghijklmnopqrstuvwxyz", "abcdefghijklmnopqrstuvwxyZ"];
+        let mut v = Interned::new(100);
+        for (i, t) in terms.iter().enumerate() {
+            assert_eq!(v.intern(t), Some(i as u32), "{t:?}");
+        }
+        for (i, t) in terms.iter().enumerate() {
+            assert_eq!(v.lookup(t), Some(i as u32), "{t:?}");
+        }
+        assert_eq!(v.lookup("abcdefghijk"), None);
+        assert_eq!(v.lookup("abcdefghijklmnopqrstuvwxy"), None);
+        let w = Interned::from_terms(terms, 100).unwrap();
+        assert!(terms.iter().enumerate().all(|(i, t)| w.lookup(t) == Some(i as u32)));
     }
 
     #[test]

@@ -6,7 +6,7 @@ use crate::features::Vocabulary;
 use crate::settings::{ModelKind, Settings, VocabularyKind};
 use crate::text::TermBag;
 
-use super::rows::LEAF_ROWS;
+use super::rows::SEGMENT_ROWS;
 use super::{Model, NbParams, ScoreScratch};
 
 const CLASSES: [&str; 4] = ["access", "billing", "returns", "shipping"];
@@ -57,7 +57,7 @@ fn probes() -> Vec<TermBag> {
 }
 
 #[test]
-fn a_clone_shares_all_storage_and_a_learn_copies_only_the_leaves_it_writes() {
+fn a_clone_shares_all_storage_and_a_learn_copies_only_the_rows_it_writes() {
     let mut a = model(ModelKind::Multinomial, VocabularyKind::Interned);
     let mut rng = SplitMix64::new(1);
     let mut fresh = 0;
@@ -65,26 +65,44 @@ fn a_clone_shares_all_storage_and_a_learn_copies_only_the_leaves_it_writes() {
         let (bag, c, w) = record(&mut rng, &mut fresh);
         a.learn(&bag, c, w).unwrap();
     }
+    // Filler terms after them, so the rows above sit in full segments.
+    let filler: Vec<String> = (0..2 * SEGMENT_ROWS).map(|i| format!("filler{i}")).collect();
+    a.learn(&TermBag::from_pairs(filler.iter().map(|t| (t.as_str(), 1.0))), "returns", 1.0).unwrap();
     let view = a.clone();
-    let (shared, leaves) = a.shared_row_leaves(&view);
-    assert_eq!(shared, leaves, "a fresh clone copies no row");
-    assert_eq!(leaves, a.rows().div_ceil(LEAF_ROWS));
+    let rows = a.rows();
+    let s = a.row_sharing(&view);
+    assert_eq!((s.shared_rows, s.rows), (rows, rows), "a fresh clone copies no row");
     let Vocabulary::Interned(va) = &a.vocab else { unreachable!() };
     let Vocabulary::Interned(vv) = &view.vocab else { unreachable!() };
     let (same_base, (shared_text, text_chunks)) = va.sharing(vv);
     assert!(same_base);
     assert_eq!(shared_text, text_chunks);
 
-    // Two known terms in different leaves: exactly two leaves are copied.
-    let leaf = |m: &Model, t: &str| m.vocab.lookup(t).unwrap() as usize / LEAF_ROWS;
-    let t1 = "w3";
-    let t2 = (0..300).map(|i| format!("w{i}")).find(|t| a.vocab.lookup(t).is_some() && leaf(&a, t) != leaf(&a, t1)).unwrap();
-    let t2 = t2.as_str();
+    // The first write after a clone may also carry the rows of a sparse open
+    // segment forward (at most half a segment), so small segments do not pile up.
+    a.learn(&TermBag::from_pairs([("w1", 1.0)]), "billing", 1.0).unwrap();
+    let first = a.row_sharing(&view);
+    assert!(first.shared_rows < rows && rows - first.shared_rows <= 1 + SEGMENT_ROWS / 2, "{first:?}");
+    // Then: two known terms not yet written, one of them twice: exactly two rows are copied.
+    let unmoved = |t: &String| match a.vocab.lookup(t) {
+        Some(id) => std::ptr::eq(a.cells.counts(id).as_ptr(), view.cells.counts(id).as_ptr()),
+        None => false,
+    };
+    let fresh_terms: Vec<String> = (2..300).map(|i| format!("w{i}")).filter(unmoved).take(2).collect();
+    assert_eq!(fresh_terms.len(), 2, "two rows still shared with the view");
+    let (t1, t2) = (fresh_terms[0].as_str(), fresh_terms[1].as_str());
     a.learn(&TermBag::from_pairs([(t1, 1.0), (t2, 1.0), (t1, 1.0)]), "billing", 1.0).unwrap();
-    assert_eq!(a.shared_row_leaves(&view), (leaves - 2, leaves));
-    // The same leaves again: nothing more is copied.
+    let s = a.row_sharing(&view);
+    assert_eq!((s.shared_rows, s.rows), (first.shared_rows - 2, rows));
+    assert_eq!(s.slots, first.slots + 2, "the two moved rows, and nothing else, were copied");
+    // The same rows again: written in place, nothing more is copied.
     a.learn(&TermBag::from_pairs([(t2, 1.0)]), "access", 1.0).unwrap();
-    assert_eq!(a.shared_row_leaves(&view), (leaves - 2, leaves));
+    assert_eq!(a.row_sharing(&view), s);
+    // A new term: one new row, which the view does not have.
+    a.learn(&TermBag::from_pairs([("brand-new", 1.0)]), "access", 1.0).unwrap();
+    let n = a.row_sharing(&view);
+    assert_eq!((n.shared_rows, n.rows, n.slots), (s.shared_rows, rows + 1, s.slots + 1));
+    assert_eq!(view.rows(), rows);
 }
 
 #[test]
@@ -186,7 +204,7 @@ fn add_class_and_reorder_after_a_clone_change_only_the_original() {
     assert_eq!(tc["x"], vec![0.0, 1.0, 0.0, 1.0, 0.0]);
     assert_eq!(tc["y"], vec![1.0, 0.0, 0.0, 2.0, 0.0]);
     assert_eq!(tc["z"], vec![0.0, 1.0, 0.0, 0.0, 0.0]);
-    assert_eq!(a.shared_row_leaves(&view).0, 0, "a new column rewrites every row");
+    assert_eq!(a.row_sharing(&view).shared_rows, 0, "a new column rewrites every row");
     assert_eq!(view.fingerprint(), fp);
     assert_eq!(view.classes(), CLASSES);
     assert_eq!(view.term_counts()["y"], vec![0.0, 2.0, 0.0, 1.0]);

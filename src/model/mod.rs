@@ -2,7 +2,7 @@
 //!
 //! - `params`: checked hyper-parameters (kind, α, priors);
 //! - `nb`: the counts, `learn`/`unlearn`, the row cache of log weights;
-//! - `rows`: per-row storage in small shared leaves, copied on write, so a clone is cheap;
+//! - `rows`: per-row storage in shared segments, a row copied on its first write after a clone;
 //! - `score`: joint log likelihoods, log-sum-exp posteriors, margin;
 //! - `explain`: the terms that contributed most to a decision;
 //! - `snapshot`: the versioned, checksummed, atomically written model file.
@@ -19,4 +19,5 @@ mod clone_tests;
 
 pub use nb::{LearnOutcome, Model};
 pub use params::NbParams;
+pub use rows::Sharing;
 pub use score::{ScoreScratch, Scored};

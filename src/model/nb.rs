@@ -5,9 +5,9 @@
 //! complement:  score(c) = Σ_t w_t · −ln(T_t − n_ct + α) + W · ln(T − N_c + α·|V|)
 //! ```
 //! The per-row data (counts, row totals, log weights) lives in a `RowStore` of
-//! small shared leaves and the vocabulary is a shared base plus a small delta,
-//! so `clone()` (publishing a read-only view) copies pointers, not rows, and the
-//! next `learn` copies only the leaves it writes to.
+//! shared segments and the vocabulary is a shared base plus a small delta, so
+//! `clone()` (publishing a read-only view) copies a row table, not rows, and
+//! the next `learn` copies only the rows it writes to.
 //!
 //! `w_t` is a term's weighted count in the record, `W` the sum over known
 //! terms, `n_ct` the class-term count, `N_c` its class total, `T_t` the term's
@@ -25,7 +25,7 @@ use crate::settings::{AnalyzerSettings, ModelKind, PriorKind, MAX_WEIGHT, WEIGHT
 use crate::text::TermBag;
 
 use super::params::NbParams;
-use super::rows::RowStore;
+use super::rows::{RowStore, Sharing};
 
 /// The model: counts plus the caches scoring reads. A model exists only after
 /// construction from checked parameters, training, or a snapshot load.
@@ -178,10 +178,10 @@ impl Model {
         self.cells.len()
     }
 
-    /// How much of its row storage this model shares with `other` (a clone, or
-    /// the model it was cloned from): `(shared leaves, leaves)`. A fresh clone
-    /// shares all of them; each leaf a later `learn` writes to stops being shared.
-    pub fn shared_row_leaves(&self, other: &Model) -> (usize, usize) {
+    /// How much row storage this model shares with `other` (a clone, or the
+    /// model it was cloned from), and how much it holds. A fresh clone shares
+    /// every row; each row a later `learn` writes to stops being shared.
+    pub fn row_sharing(&self, other: &Model) -> Sharing {
         self.cells.sharing(&other.cells)
     }
 
@@ -190,6 +190,7 @@ impl Model {
         let c = self.class_index(class).ok_or_else(|| ModelError::UnknownClass(class.to_string()))?;
         check_weights(bag, weight)?;
         let mut out = LearnOutcome::default();
+        let mut cells: Vec<(u32, f64)> = Vec::with_capacity(bag.len());
         for (term, w) in bag.iter() {
             let rows_before = self.vocab.rows();
             let Some(id) = self.vocab.intern(term) else {
@@ -200,7 +201,11 @@ impl Model {
                 self.push_row();
                 out.new_terms += 1;
             }
-            self.add_cell(id as usize, c, w * weight);
+            cells.push((id, w * weight));
+        }
+        self.cells.warm(cells.iter().map(|e| e.0), c);
+        for (id, w) in cells {
+            self.add_cell(id as usize, c, w);
         }
         self.doc_counts[c] += weight;
         self.refresh_class_terms();
