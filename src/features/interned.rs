@@ -4,7 +4,7 @@
 //! term's first `HEAD` bytes), never strings, so cloning the vocabulary copies one
 //! pointer for the base, one per text chunk, and the delta slots. A lookup hashes
 //! the term once and probes the base; only a term the base lacks also probes the
-//! delta (skipped when it is empty). A term of up to `HEAD` bytes is compared
+//! delta (skipped when it is empty). A term of up to 12 bytes is compared
 //! inside the slot, without reading the term text.
 //! New terms go to the delta. When the delta reaches
 //! `max(DELTA_MIN, base / DELTA_FRACTION)` slots it is folded into a new base:
@@ -26,47 +26,68 @@ pub const DELTA_MIN: usize = 1024;
 /// …or, for a larger base, this fraction of the base.
 pub const DELTA_FRACTION: usize = 16;
 
-/// Bytes of a term kept in its slot.
-const HEAD: usize = 12;
+/// Terms up to this many bytes are compared in the slot alone.
+const INLINE: usize = 12;
 
 #[derive(Clone, Copy)]
 struct Slot {
     hash: u64,
+    /// Some of the term's bytes (see `sample`): all of them for a term of up to 12 bytes.
+    sample: u64,
+    tail: u32,
     id: u32,
     /// Where the term starts in its text chunk, and its length in bytes.
     start: u32,
     len: u32,
-    /// The first `HEAD` bytes, zero-padded.
-    head: [u8; HEAD],
+}
+
+/// Bytes of `b` in two words, read with fixed-size loads: the first 8 and last 4
+/// (8 to 12 bytes and longer), the first 4 and last 4 (4 to 7), or the first,
+/// middle and last (1 to 3). For a length of up to 12 bytes they cover every byte,
+/// so equal lengths and equal samples mean equal terms.
+#[inline]
+fn sample(b: &[u8]) -> (u64, u32) {
+    let n = b.len();
+    let word4 = |at: usize| u32::from_le_bytes([b[at], b[at + 1], b[at + 2], b[at + 3]]);
+    if n >= 8 {
+        let first = u64::from_le_bytes([b[0], b[1], b[2], b[3], b[4], b[5], b[6], b[7]]);
+        (first, word4(n - 4))
+    } else if n >= 4 {
+        (word4(0) as u64, word4(n - 4))
+    } else if n > 0 {
+        (b[0] as u64 | (b[n / 2] as u64) << 8 | (b[n - 1] as u64) << 16, 0)
+    } else {
+        (0, 0)
+    }
 }
 
 /// What a probe compares slots against, computed once per lookup.
 struct Key<'a> {
     term: &'a str,
     hash: u64,
-    head: [u8; HEAD],
+    sample: u64,
+    tail: u32,
 }
 
 impl<'a> Key<'a> {
     #[inline]
     fn new(term: &'a str) -> Key<'a> {
-        let mut head = [0u8; HEAD];
-        let n = term.len().min(HEAD);
-        head[..n].copy_from_slice(&term.as_bytes()[..n]);
-        Key { term, hash: FxBuildHasher.hash_one(term), head }
+        let (sample, tail) = sample(term.as_bytes());
+        Key { term, hash: FxBuildHasher.hash_one(term), sample, tail }
     }
 
     #[inline]
     fn slot(&self, id: u32, start: u32) -> Slot {
-        Slot { hash: self.hash, id, start, len: self.term.len() as u32, head: self.head }
+        Slot { hash: self.hash, sample: self.sample, tail: self.tail, id, start, len: self.term.len() as u32 }
     }
 
     #[inline]
     fn matches(&self, text: &TermText, s: &Slot) -> bool {
         s.hash == self.hash
             && s.len as usize == self.term.len()
-            && s.head == self.head
-            && (self.term.len() <= HEAD || text.bytes_at(s.id, s.start, s.len) == self.term.as_bytes())
+            && s.sample == self.sample
+            && s.tail == self.tail
+            && (self.term.len() <= INLINE || text.bytes_at(s.id, s.start, s.len) == self.term.as_bytes())
     }
 }
 
@@ -261,8 +282,12 @@ mod tests {
 
     #[test]
     fn terms_sharing_their_first_bytes_are_told_apart() {
-        // Lengths around HEAD, a shared head, and zero padding against a real zero byte.
-        let terms = ["", "abc", "abc\0", "abcdefghijkl", "abcdefghijklm", "abcdefghijklx", "abcdefghijklmnopqrstuvwxyz", "abcdefghijklmnopqrstuvwxyZ"];
+        // Lengths around 4, 8 and 12 bytes, shared first and last bytes, and zero bytes.
+        let terms = [
+            "", "a", "\0", "ab", "abc", "abc\0", "axc", "abcd", "abxcd", "abcxd", "abcdefg", "abcxefg", "abcdefgh", "abcdefghijk",
+            "abcdefgxijk", "abcdefghijkl", "abcdefghxjkl", "abcdefghijklm", "abcdefghijklx", "abcdefghijklmnopqrstuvwxyz", "abcdefghijklmnopqrstuvwxyZ",
+            "abcdefghijklmnopqrstuvwxyz\0",
+        ];
         let mut v = Interned::new(100);
         for (i, t) in terms.iter().enumerate() {
             assert_eq!(v.intern(t), Some(i as u32), "{t:?}");
@@ -270,7 +295,8 @@ mod tests {
         for (i, t) in terms.iter().enumerate() {
             assert_eq!(v.lookup(t), Some(i as u32), "{t:?}");
         }
-        assert_eq!(v.lookup("abcdefghijk"), None);
+        assert_eq!(v.lookup("abcdefghij"), None);
+        assert_eq!(v.lookup("abcdxfghijkl"), None);
         assert_eq!(v.lookup("abcdefghijklmnopqrstuvwxy"), None);
         let w = Interned::from_terms(terms, 100).unwrap();
         assert!(terms.iter().enumerate().all(|(i, t)| w.lookup(t) == Some(i as u32)));

@@ -44,6 +44,8 @@ pub struct Model {
     pub(crate) live_terms: usize,
     pub(crate) norm: Vec<f64>,
     pub(crate) log_prior: Vec<f64>,
+    /// Reused by `learn` and `unlearn` for the (row, weight) cells of a record; empty between calls.
+    scratch: Vec<(u32, f64)>,
 }
 
 /// What one `learn` did.
@@ -86,6 +88,7 @@ impl Model {
             live_terms: 0,
             norm: Vec::new(),
             log_prior: Vec::new(),
+            scratch: Vec::new(),
         };
         m.refresh_class_terms();
         Ok(m)
@@ -190,7 +193,8 @@ impl Model {
         let c = self.class_index(class).ok_or_else(|| ModelError::UnknownClass(class.to_string()))?;
         check_weights(bag, weight)?;
         let mut out = LearnOutcome::default();
-        let mut cells: Vec<(u32, f64)> = Vec::with_capacity(bag.len());
+        let mut cells = std::mem::take(&mut self.scratch);
+        cells.clear();
         for (term, w) in bag.iter() {
             let rows_before = self.vocab.rows();
             let Some(id) = self.vocab.intern(term) else {
@@ -203,10 +207,8 @@ impl Model {
             }
             cells.push((id, w * weight));
         }
-        self.cells.warm(cells.iter().map(|e| e.0), c);
-        for (id, w) in cells {
-            self.add_cell(id as usize, c, w);
-        }
+        self.add_cells(&cells, c);
+        self.scratch = cells;
         self.doc_counts[c] += weight;
         self.refresh_class_terms();
         Ok(out)
@@ -243,9 +245,10 @@ impl Model {
         if self.doc_counts[c] < weight {
             return Err(ModelError::NotLearned { class: class.to_string() });
         }
-        for (id, w) in need {
-            self.add_cell(id as usize, c, -w);
+        for e in &mut need {
+            e.1 = -e.1;
         }
+        self.add_cells(&need, c);
         self.doc_counts[c] -= weight;
         self.refresh_class_terms();
         Ok(())
@@ -365,29 +368,32 @@ impl Model {
         self.cells.push(v);
     }
 
-    #[inline]
-    fn add_cell(&mut self, id: usize, c: usize, w: f64) {
+    /// Add each weight to its row's count in class `c`, in order, with the totals,
+    /// the live-term count and the row's log weights.
+    fn add_cells(&mut self, cells: &[(u32, f64)], c: usize) {
         let (kind, alpha) = (self.params.kind, self.params.alpha);
-        let row = self.cells.row_mut(id as u32);
-        let before = *row.total;
-        row.counts[c] += w;
-        *row.total += w;
-        let after = *row.total;
-        match kind {
-            ModelKind::Multinomial => row.logw[c] = cell_weight(kind, alpha, row.counts[c], after),
-            ModelKind::Complement => {
-                for (lw, &n) in row.logw.iter_mut().zip(row.counts.iter()) {
-                    *lw = cell_weight(kind, alpha, n, after);
+        let Model { cells: rows, class_totals, total, live_terms, .. } = self;
+        rows.update(cells, c, |row, w| {
+            let before = *row.total;
+            row.counts[c] += w;
+            *row.total += w;
+            let after = *row.total;
+            match kind {
+                ModelKind::Multinomial => row.logw[c] = cell_weight(kind, alpha, row.counts[c], after),
+                ModelKind::Complement => {
+                    for (lw, &n) in row.logw.iter_mut().zip(row.counts.iter()) {
+                        *lw = cell_weight(kind, alpha, n, after);
+                    }
                 }
             }
-        }
-        self.class_totals[c] += w;
-        self.total += w;
-        if before == 0.0 && after != 0.0 {
-            self.live_terms += 1;
-        } else if before != 0.0 && after == 0.0 {
-            self.live_terms -= 1;
-        }
+            class_totals[c] += w;
+            *total += w;
+            if before == 0.0 && after != 0.0 {
+                *live_terms += 1;
+            } else if before != 0.0 && after == 0.0 {
+                *live_terms -= 1;
+            }
+        });
     }
 
     /// A new row store with `k` columns per row: `fill(old counts, new counts)`

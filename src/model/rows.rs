@@ -160,19 +160,39 @@ impl RowStore {
         (r[0], &r[1..1 + self.k])
     }
 
-    /// Read the cells of column `c` that writes to rows `ids` are about to touch.
+    /// Apply `f` to the rows of `cells` in order, each with its weight, for a write
+    /// to column `c`.
     ///
-    /// A write takes a segment with an atomic operation, which on common CPUs keeps
-    /// later reads from starting early; reading all the rows first lets their
-    /// cache misses overlap, and the writes then find them in cache.
-    #[inline]
-    pub fn warm(&self, ids: impl Iterator<Item = u32>, c: usize) {
+    /// First every row is read (and moved if a clone shares its segment), then the
+    /// writes are done. Taking a segment for writing is an atomic operation, which on
+    /// common CPUs keeps later reads from starting early; reading all rows first lets
+    /// their cache misses overlap, and a run of rows in one segment takes it once.
+    pub fn update(&mut self, cells: &[(u32, f64)], c: usize, mut f: impl FnMut(RowMut<'_>, f64)) {
         let mut acc = 0.0;
-        for id in ids {
-            let r = self.row(id);
-            acc += r[0] + r[1 + c] + r[1 + self.k + c];
+        for &(id, _) in cells {
+            let p = self.table[id as usize];
+            if is_unique(&self.segments[p.seg as usize]) {
+                let r = self.row_at(p);
+                acc += r[0] + r[1 + c] + r[1 + self.k + c];
+            } else {
+                self.relocate(id);
+                self.evacuate_if_sparse(p.seg);
+            }
         }
         std::hint::black_box(acc);
+        let (k, stride) = (self.k, self.stride);
+        let (table, segments) = (&self.table, &mut self.segments);
+        let mut current: Option<(u32, &mut Segment)> = None;
+        for &(id, w) in cells {
+            let p = table[id as usize];
+            let seg = match current {
+                Some((i, seg)) if i == p.seg => seg,
+                _ => unique_mut(&mut segments[p.seg as usize]),
+            };
+            let s = p.at as usize * stride;
+            f(RowMut::split(&mut seg.data[s..s + stride], k), w);
+            current = Some((p.seg, seg));
+        }
     }
 
     /// A writable row; moved first if a clone shares its segment.
