@@ -1,14 +1,20 @@
 //! Term → row mapping: an interned vocabulary with a size bound, or feature hashing into a fixed number of buckets.
+//!
+//! - `interned`: the exact vocabulary, a shared base index plus a small delta, cheap to clone;
+//! - `term_text`: its append-only term text in shared chunks.
 
-use rustc_hash::FxHashMap;
+pub mod interned;
+pub mod term_text;
 
 use crate::settings::VocabularyKind;
+
+pub use interned::Interned;
 
 /// Maps terms to model rows.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Vocabulary {
     /// Exact terms, first-seen order, at most `max` of them.
-    Interned { map: FxHashMap<Box<str>, u32>, terms: Vec<Box<str>>, max: usize },
+    Interned(Interned),
     /// Terms hashed (FNV-1a 64, stable across processes) into `buckets` rows.
     Hashed { buckets: u32 },
 }
@@ -16,22 +22,23 @@ pub enum Vocabulary {
 impl Vocabulary {
     pub fn new(kind: VocabularyKind, max: usize, buckets: usize) -> Vocabulary {
         match kind {
-            VocabularyKind::Interned => Vocabulary::Interned { map: FxHashMap::default(), terms: Vec::new(), max },
+            VocabularyKind::Interned => Vocabulary::Interned(Interned::new(max)),
             VocabularyKind::Hashed => Vocabulary::Hashed { buckets: buckets as u32 },
         }
     }
 
     pub fn kind(&self) -> VocabularyKind {
         match self {
-            Vocabulary::Interned { .. } => VocabularyKind::Interned,
+            Vocabulary::Interned(_) => VocabularyKind::Interned,
             Vocabulary::Hashed { .. } => VocabularyKind::Hashed,
         }
     }
 
     /// Number of rows the model holds for this vocabulary.
+    #[inline]
     pub fn rows(&self) -> usize {
         match self {
-            Vocabulary::Interned { terms, .. } => terms.len(),
+            Vocabulary::Interned(v) => v.len(),
             Vocabulary::Hashed { buckets } => *buckets as usize,
         }
     }
@@ -39,7 +46,7 @@ impl Vocabulary {
     /// The size bound: `max` terms, or the bucket count.
     pub fn capacity(&self) -> usize {
         match self {
-            Vocabulary::Interned { max, .. } => *max,
+            Vocabulary::Interned(v) => v.max(),
             Vocabulary::Hashed { buckets } => *buckets as usize,
         }
     }
@@ -47,7 +54,7 @@ impl Vocabulary {
     #[inline]
     pub fn lookup(&self, term: &str) -> Option<u32> {
         match self {
-            Vocabulary::Interned { map, .. } => map.get(term).copied(),
+            Vocabulary::Interned(v) => v.lookup(term),
             Vocabulary::Hashed { buckets } => Some(bucket(term, *buckets)),
         }
     }
@@ -56,19 +63,7 @@ impl Vocabulary {
     #[inline]
     pub fn intern(&mut self, term: &str) -> Option<u32> {
         match self {
-            Vocabulary::Interned { map, terms, max } => {
-                if let Some(&id) = map.get(term) {
-                    return Some(id);
-                }
-                if terms.len() >= *max {
-                    return None;
-                }
-                let id = terms.len() as u32;
-                let boxed: Box<str> = term.into();
-                terms.push(boxed.clone());
-                map.insert(boxed, id);
-                Some(id)
-            }
+            Vocabulary::Interned(v) => v.intern(term),
             Vocabulary::Hashed { buckets } => Some(bucket(term, *buckets)),
         }
     }
@@ -76,29 +71,28 @@ impl Vocabulary {
     /// The term of a row (interned only).
     pub fn term(&self, id: u32) -> Option<&str> {
         match self {
-            Vocabulary::Interned { terms, .. } => terms.get(id as usize).map(|t| &**t),
+            Vocabulary::Interned(v) => v.term(id),
             Vocabulary::Hashed { .. } => None,
         }
     }
 
     /// All terms in row order (interned only; empty for hashing).
-    pub fn terms(&self) -> &[Box<str>] {
-        match self {
-            Vocabulary::Interned { terms, .. } => terms,
-            Vocabulary::Hashed { .. } => &[],
-        }
+    pub fn terms(&self) -> impl Iterator<Item = &str> + '_ {
+        let interned = match self {
+            Vocabulary::Interned(v) => Some(v),
+            Vocabulary::Hashed { .. } => None,
+        };
+        interned.into_iter().flat_map(|v| v.terms())
     }
 
     /// Rebuild an interned vocabulary from its terms in row order.
     pub fn from_terms(terms: Vec<Box<str>>, max: usize) -> Result<Vocabulary, String> {
-        let mut map = FxHashMap::default();
-        map.reserve(terms.len());
-        for (i, t) in terms.iter().enumerate() {
-            if map.insert(t.clone(), i as u32).is_some() {
-                return Err(format!("term {t:?} appears twice"));
-            }
-        }
-        Ok(Vocabulary::Interned { map, terms, max: max.max(0) })
+        Vocabulary::from_term_iter(terms, max)
+    }
+
+    /// `from_terms` for any sequence of strings (a snapshot's borrowed terms).
+    pub fn from_term_iter<S: AsRef<str>>(terms: impl IntoIterator<Item = S>, max: usize) -> Result<Vocabulary, String> {
+        Interned::from_terms(terms, max).map(Vocabulary::Interned)
     }
 }
 

@@ -21,7 +21,7 @@ pub fn top_terms(model: &Model, n: usize) -> Vec<Vec<(String, f64)>> {
     for (c, list) in out.iter_mut().enumerate() {
         let rest_total = grand - totals[c];
         let mut scored: Vec<(f64, &str)> = Vec::new();
-        for (id, term) in model.vocabulary().terms().iter().enumerate() {
+        for (id, term) in model.vocabulary().terms().enumerate() {
             let row = model.row(id as u32);
             if row[c] < 2.0 {
                 continue;

@@ -113,7 +113,7 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
 fn write_dump(path: &std::path::Path, model: &Model, rows: &[(String, Vec<(String, f64)>)]) -> Result<()> {
     let vocab = model.vocabulary();
     let mut f = std::io::BufWriter::new(std::fs::File::create(path).with_context(|| format!("create {}", path.display()))?);
-    let terms: Vec<&str> = vocab.terms().iter().map(|t| &**t).collect();
+    let terms: Vec<&str> = vocab.terms().collect();
     let mut out_rows = Vec::with_capacity(rows.len());
     for (label, feats) in rows {
         let y = model.class_index(label).expect("learned class");

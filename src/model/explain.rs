@@ -22,7 +22,6 @@ impl Model {
         if n == 0 || s.hits.is_empty() {
             return Vec::new();
         }
-        let k = self.k;
         let b = scored.best;
         let r = scored.runner_up;
         let mut hits: Vec<(u32, f64, u32)> = s.hits.clone();
@@ -36,7 +35,7 @@ impl Model {
                 w += hits[i].1;
                 i += 1;
             }
-            let row = &self.logw[id as usize * k..id as usize * k + k];
+            let row = self.cells.logw(id);
             let own = row[b] - self.norm[b];
             let c = match r {
                 Some(r) => w * (own - (row[r] - self.norm[r])),
@@ -83,11 +82,11 @@ mod tests {
         assert_eq!(all[0].term, "refund");
         assert_eq!(all.len(), 2, "late points to shipping, so only two positive terms: {all:?}");
         // Including the negative one, contributions + prior gap = margin.
-        let k = 2;
         let mut total = m.log_prior[0] - m.log_prior[1];
         for (t, w) in bag.iter() {
-            let id = m.vocabulary().lookup(t).unwrap() as usize;
-            total += w * ((m.logw[id * k] - m.norm[0]) - (m.logw[id * k + 1] - m.norm[1]));
+            let id = m.vocabulary().lookup(t).unwrap();
+            let logw = m.cells.logw(id);
+            total += w * ((logw[0] - m.norm[0]) - (logw[1] - m.norm[1]));
         }
         assert!((total - r.margin).abs() < 1e-9);
         assert_eq!(m.explain(&bag, &s, &r, 1).len(), 1);

@@ -4,6 +4,11 @@
 //! multinomial: score(c) = ln π(c) + Σ_t w_t · ln(n_ct + α) − W · ln(N_c + α·|V|)
 //! complement:  score(c) = Σ_t w_t · −ln(T_t − n_ct + α) + W · ln(T − N_c + α·|V|)
 //! ```
+//! The per-row data (counts, row totals, log weights) lives in a `RowStore` of
+//! shared segments and the vocabulary is a shared base plus a small delta, so
+//! `clone()` (publishing a read-only view) copies a row table, not rows, and
+//! the next `learn` copies only the rows it writes to.
+//!
 //! `w_t` is a term's weighted count in the record, `W` the sum over known
 //! terms, `n_ct` the class-term count, `N_c` its class total, `T_t` the term's
 //! total over classes and `T` the grand total. `|V|` is the number of terms
@@ -20,6 +25,7 @@ use crate::settings::{AnalyzerSettings, ModelKind, PriorKind, MAX_WEIGHT, WEIGHT
 use crate::text::TermBag;
 
 use super::params::NbParams;
+use super::rows::{RowStore, Sharing};
 
 /// The model: counts plus the caches scoring reads. A model exists only after
 /// construction from checked parameters, training, or a snapshot load.
@@ -30,21 +36,20 @@ pub struct Model {
     pub(crate) classes: Vec<String>,
     pub(crate) vocab: Vocabulary,
     pub(crate) k: usize,
-    /// rows × k, row-major.
-    pub(crate) counts: Vec<f64>,
-    pub(crate) row_totals: Vec<f64>,
+    /// Per row: the K counts, the row total and the K cached log weights.
+    pub(crate) cells: RowStore,
     pub(crate) class_totals: Vec<f64>,
     pub(crate) doc_counts: Vec<f64>,
     pub(crate) total: f64,
     pub(crate) live_terms: usize,
-    /// rows × k cache of the per-cell log weight.
-    pub(crate) logw: Vec<f64>,
     pub(crate) norm: Vec<f64>,
     pub(crate) log_prior: Vec<f64>,
     /// Identifies the class list: two models with the same id have the same
     /// classes in the same order (a clone keeps it; changing the classes
     /// takes a fresh one). Lets callers cache class lookups without comparing names.
     pub(crate) classes_id: u64,
+    /// Reused by `learn` and `unlearn` for the (row, weight) cells of a record; empty between calls.
+    scratch: Vec<(u32, f64)>,
 }
 
 /// A fresh `classes_id`, never handed out before in this process.
@@ -79,39 +84,45 @@ impl Model {
         }
         let k = classes.len();
         let rows = vocab.rows();
+        let empty = cell_weight(params.kind, params.alpha, 0.0, 0.0);
         let mut m = Model {
             params,
             analyzer,
             classes,
             vocab,
             k,
-            counts: vec![0.0; rows * k],
-            row_totals: vec![0.0; rows],
+            cells: RowStore::new(k, rows, empty),
             class_totals: vec![0.0; k],
             doc_counts: vec![0.0; k],
             total: 0.0,
             live_terms: 0,
-            logw: Vec::new(),
             norm: Vec::new(),
             log_prior: Vec::new(),
             classes_id: next_classes_id(),
+            scratch: Vec::new(),
         };
-        m.rebuild_cache();
+        m.refresh_class_terms();
         Ok(m)
     }
 
-    /// Build from stored counts (snapshot load); derives totals and caches.
+    /// Build from stored counts, rows × K in row-major order (snapshot load);
+    /// derives totals and caches.
     pub(crate) fn from_counts(
         params: NbParams,
         analyzer: AnalyzerSettings,
         classes: Vec<String>,
         vocab: Vocabulary,
         doc_counts: Vec<f64>,
-        counts: Vec<f64>,
+        counts: impl ExactSizeIterator<Item = f64>,
     ) -> Result<Model, ModelError> {
         let mut m = Model::new(params, analyzer, classes, vocab)?;
-        assert_eq!(counts.len(), m.counts.len());
-        m.counts = counts;
+        assert_eq!(counts.len(), m.rows() * m.k);
+        let mut counts = counts;
+        m.cells.for_each_mut(|_, row| {
+            for (cell, v) in row.counts.iter_mut().zip(&mut counts) {
+                *cell = v;
+            }
+        });
         m.doc_counts = doc_counts;
         m.recount();
         m.rebuild_cache();
@@ -151,7 +162,7 @@ impl Model {
     /// The effective |V| in the smoothing denominator.
     pub fn effective_vocabulary(&self) -> f64 {
         match self.vocab {
-            Vocabulary::Interned { .. } => self.live_terms as f64,
+            Vocabulary::Interned(_) => self.live_terms as f64,
             Vocabulary::Hashed { buckets } => buckets as f64,
         }
     }
@@ -175,16 +186,22 @@ impl Model {
 
     /// The K class counts of a row.
     pub fn row(&self, id: u32) -> &[f64] {
-        let s = id as usize * self.k;
-        &self.counts[s..s + self.k]
+        self.cells.counts(id)
     }
 
     pub fn row_total(&self, id: u32) -> f64 {
-        self.row_totals[id as usize]
+        self.cells.total(id)
     }
 
     pub fn rows(&self) -> usize {
-        self.row_totals.len()
+        self.cells.len()
+    }
+
+    /// How much row storage this model shares with `other` (a clone, or the
+    /// model it was cloned from), and how much it holds. A fresh clone shares
+    /// every row; each row a later `learn` writes to stops being shared.
+    pub fn row_sharing(&self, other: &Model) -> Sharing {
+        self.cells.sharing(&other.cells)
     }
 
     /// Learn a record's terms as `class`, each occurrence scaled by `weight`.
@@ -192,6 +209,8 @@ impl Model {
         let c = self.class_index(class).ok_or_else(|| ModelError::UnknownClass(class.to_string()))?;
         check_weights(bag, weight)?;
         let mut out = LearnOutcome::default();
+        let mut cells = std::mem::take(&mut self.scratch);
+        cells.clear();
         for (term, w) in bag.iter() {
             let rows_before = self.vocab.rows();
             let Some(id) = self.vocab.intern(term) else {
@@ -202,8 +221,10 @@ impl Model {
                 self.push_row();
                 out.new_terms += 1;
             }
-            self.add_cell(id as usize, c, w * weight);
+            cells.push((id, w * weight));
         }
+        self.add_cells(&cells, c);
+        self.scratch = cells;
         self.doc_counts[c] += weight;
         self.refresh_class_terms();
         Ok(out)
@@ -214,7 +235,7 @@ impl Model {
     pub fn unlearn(&mut self, bag: &TermBag, class: &str, weight: f64) -> Result<(), ModelError> {
         let c = self.class_index(class).ok_or_else(|| ModelError::UnknownClass(class.to_string()))?;
         check_weights(bag, weight)?;
-        let full = self.vocab.rows() >= self.vocab.capacity() && matches!(self.vocab, Vocabulary::Interned { .. });
+        let full = self.vocab.rows() >= self.vocab.capacity() && matches!(self.vocab, Vocabulary::Interned(_));
         // Check first, so a refused unlearn changes nothing.
         let mut need: Vec<(u32, f64)> = Vec::with_capacity(bag.len());
         for (term, w) in bag.iter() {
@@ -233,16 +254,17 @@ impl Model {
                 sum += need[i].1;
                 i += 1;
             }
-            if self.counts[id as usize * self.k + c] < sum {
+            if self.cells.counts(id)[c] < sum {
                 return Err(ModelError::NotLearned { class: class.to_string() });
             }
         }
         if self.doc_counts[c] < weight {
             return Err(ModelError::NotLearned { class: class.to_string() });
         }
-        for (id, w) in need {
-            self.add_cell(id as usize, c, -w);
+        for e in &mut need {
+            e.1 = -e.1;
         }
+        self.add_cells(&need, c);
         self.doc_counts[c] -= weight;
         self.refresh_class_terms();
         Ok(())
@@ -256,13 +278,8 @@ impl Model {
         if self.params.priors == PriorKind::Given && !self.params.given_priors.contains_key(class) {
             return Err(ModelError::MissingPrior(class.to_string()));
         }
-        let (k, rows) = (self.k, self.rows());
-        let mut counts = Vec::with_capacity(rows * (k + 1));
-        for r in 0..rows {
-            counts.extend_from_slice(&self.counts[r * k..r * k + k]);
-            counts.push(0.0);
-        }
-        self.counts = counts;
+        let k = self.k;
+        self.cells = self.remap_columns(k + 1, |old, new| new[..k].copy_from_slice(old));
         self.classes.push(class.to_string());
         self.classes_id = next_classes_id();
         self.class_totals.push(0.0);
@@ -282,14 +299,11 @@ impl Model {
         if map.len() != self.k {
             return Err(ModelError::UnknownClass(format!("{} classes given for {}", map.len(), self.k)));
         }
-        let k = self.k;
-        let mut counts = vec![0.0; self.counts.len()];
-        for r in 0..self.rows() {
+        self.cells = self.remap_columns(self.k, |old, new| {
             for (new_c, &old_c) in map.iter().enumerate() {
-                counts[r * k + new_c] = self.counts[r * k + old_c];
+                new[new_c] = old[old_c];
             }
-        }
-        self.counts = counts;
+        });
         self.doc_counts = map.iter().map(|&o| self.doc_counts[o]).collect();
         self.class_totals = map.iter().map(|&o| self.class_totals[o]).collect();
         self.classes = order.to_vec();
@@ -324,25 +338,26 @@ impl Model {
         for d in &self.doc_counts {
             h.update(&d.to_le_bytes());
         }
-        let put_row = |h: &mut blake3::Hasher, id: usize| {
-            for v in &self.counts[id * self.k..id * self.k + self.k] {
+        let put_row = |h: &mut blake3::Hasher, id: u32| {
+            for v in self.cells.counts(id) {
                 h.update(&v.to_le_bytes());
             }
         };
         match &self.vocab {
-            Vocabulary::Interned { terms, .. } => {
-                let mut ids: Vec<usize> = (0..terms.len()).filter(|&i| self.row_totals[i] != 0.0).collect();
-                ids.sort_by(|&a, &b| terms[a].cmp(&terms[b]));
+            Vocabulary::Interned(v) => {
+                let term = |id: u32| v.term(id).expect("every row has a term");
+                let mut ids: Vec<u32> = (0..v.len() as u32).filter(|&i| self.cells.total(i) != 0.0).collect();
+                ids.sort_by(|&a, &b| term(a).cmp(term(b)));
                 for id in ids {
-                    h.update(&(terms[id].len() as u64).to_le_bytes());
-                    h.update(terms[id].as_bytes());
+                    h.update(&(term(id).len() as u64).to_le_bytes());
+                    h.update(term(id).as_bytes());
                     put_row(&mut h, id);
                 }
             }
             Vocabulary::Hashed { buckets } => {
                 h.update(&buckets.to_le_bytes());
-                for id in 0..self.rows() {
-                    if self.row_totals[id] != 0.0 {
+                for id in 0..self.rows() as u32 {
+                    if self.cells.total(id) != 0.0 {
                         h.update(&(id as u64).to_le_bytes());
                         put_row(&mut h, id);
                     }
@@ -356,8 +371,8 @@ impl Model {
     /// the comparable form used by tests and tools.
     pub fn term_counts(&self) -> BTreeMap<String, Vec<f64>> {
         let mut out = BTreeMap::new();
-        for (id, t) in self.vocab.terms().iter().enumerate() {
-            if self.row_totals[id] != 0.0 {
+        for (id, t) in self.vocab.terms().enumerate() {
+            if self.cells.total(id as u32) != 0.0 {
                 out.insert(t.to_string(), self.row(id as u32).to_vec());
             }
         }
@@ -367,76 +382,79 @@ impl Model {
     // ---- internals -------------------------------------------------------
 
     fn push_row(&mut self) {
-        self.counts.extend(std::iter::repeat_n(0.0, self.k));
-        self.row_totals.push(0.0);
-        let v = self.cell_weight(0.0, 0.0);
-        self.logw.extend(std::iter::repeat_n(v, self.k));
+        let v = cell_weight(self.params.kind, self.params.alpha, 0.0, 0.0);
+        self.cells.push(v);
     }
 
-    #[inline]
-    fn add_cell(&mut self, id: usize, c: usize, w: f64) {
-        let k = self.k;
-        let before = self.row_totals[id];
-        self.counts[id * k + c] += w;
-        self.row_totals[id] += w;
-        self.class_totals[c] += w;
-        self.total += w;
-        let after = self.row_totals[id];
-        if before == 0.0 && after != 0.0 {
-            self.live_terms += 1;
-        } else if before != 0.0 && after == 0.0 {
-            self.live_terms -= 1;
-        }
-        match self.params.kind {
-            ModelKind::Multinomial => self.logw[id * k + c] = self.cell_weight(self.counts[id * k + c], after),
-            ModelKind::Complement => {
-                for j in 0..k {
-                    self.logw[id * k + j] = self.cell_weight(self.counts[id * k + j], after);
+    /// Add each weight to its row's count in class `c`, in order, with the totals,
+    /// the live-term count and the row's log weights.
+    fn add_cells(&mut self, cells: &[(u32, f64)], c: usize) {
+        let (kind, alpha) = (self.params.kind, self.params.alpha);
+        let Model { cells: rows, class_totals, total, live_terms, .. } = self;
+        rows.update(cells, c, |row, w| {
+            let before = *row.total;
+            row.counts[c] += w;
+            *row.total += w;
+            let after = *row.total;
+            match kind {
+                ModelKind::Multinomial => row.logw[c] = cell_weight(kind, alpha, row.counts[c], after),
+                ModelKind::Complement => {
+                    for (lw, &n) in row.logw.iter_mut().zip(row.counts.iter()) {
+                        *lw = cell_weight(kind, alpha, n, after);
+                    }
                 }
             }
-        }
+            class_totals[c] += w;
+            *total += w;
+            if before == 0.0 && after != 0.0 {
+                *live_terms += 1;
+            } else if before != 0.0 && after == 0.0 {
+                *live_terms -= 1;
+            }
+        });
     }
 
-    #[inline]
-    fn cell_weight(&self, n: f64, row_total: f64) -> f64 {
-        let a = self.params.alpha;
-        match self.params.kind {
-            ModelKind::Multinomial => (n + a).ln(),
-            ModelKind::Complement => -(row_total - n + a).ln(),
-        }
+    /// A new row store with `k` columns per row: `fill(old counts, new counts)`
+    /// writes each row's counts; row totals carry over, log weights are left for
+    /// `rebuild_cache`.
+    fn remap_columns(&self, k: usize, mut fill: impl FnMut(&[f64], &mut [f64])) -> RowStore {
+        let mut cells = RowStore::new(k, self.rows(), 0.0);
+        cells.for_each_mut(|id, row| {
+            fill(self.cells.counts(id as u32), row.counts);
+            *row.total = self.cells.total(id as u32);
+        });
+        cells
     }
 
     /// Totals from the counts (after a load).
     fn recount(&mut self) {
         let k = self.k;
-        self.class_totals = vec![0.0; k];
-        self.live_terms = 0;
-        self.total = 0.0;
-        for r in 0..self.rows() {
+        let mut class_totals = vec![0.0; k];
+        let mut live_terms = 0;
+        self.cells.for_each_mut(|_, row| {
             let mut t = 0.0;
-            for c in 0..k {
-                let v = self.counts[r * k + c];
+            for (ct, &v) in class_totals.iter_mut().zip(row.counts.iter()) {
                 t += v;
-                self.class_totals[c] += v;
+                *ct += v;
             }
-            self.row_totals[r] = t;
+            *row.total = t;
             if t != 0.0 {
-                self.live_terms += 1;
+                live_terms += 1;
             }
-        }
+        });
+        self.class_totals = class_totals;
+        self.live_terms = live_terms;
         self.total = self.class_totals.iter().sum();
     }
 
     pub(crate) fn rebuild_cache(&mut self) {
-        let k = self.k;
-        let mut logw = Vec::with_capacity(self.counts.len());
-        for r in 0..self.rows() {
-            let t = self.row_totals[r];
-            for c in 0..k {
-                logw.push(self.cell_weight(self.counts[r * k + c], t));
+        let (kind, alpha) = (self.params.kind, self.params.alpha);
+        self.cells.for_each_mut(|_, row| {
+            let t = *row.total;
+            for (lw, &n) in row.logw.iter_mut().zip(row.counts.iter()) {
+                *lw = cell_weight(kind, alpha, n, t);
             }
-        }
-        self.logw = logw;
+        });
         self.refresh_class_terms();
     }
 
@@ -462,6 +480,15 @@ impl Model {
                 }
             }
         };
+    }
+}
+
+/// The cached log weight of a cell with count `n` in a row totalling `row_total`.
+#[inline]
+fn cell_weight(kind: ModelKind, alpha: f64, n: f64, row_total: f64) -> f64 {
+    match kind {
+        ModelKind::Multinomial => (n + alpha).ln(),
+        ModelKind::Complement => -(row_total - n + alpha).ln(),
     }
 }
 
@@ -659,9 +686,9 @@ mod tests {
         for i in 0..500 {
             a.learn(&bag(&[&format!("t{i}")]), "a", 1.0).unwrap();
         }
-        let snapshot_rows: Vec<f64> = a.logw.clone();
+        let snapshot_rows: Vec<f64> = a.cells.logw_flat();
         a.learn(&bag(&["t7"]), "b", 1.0).unwrap();
-        let changed = snapshot_rows.iter().zip(&a.logw).filter(|(x, y)| x != y).count();
+        let changed = snapshot_rows.iter().zip(&a.cells.logw_flat()).filter(|(x, y)| x != y).count();
         assert_eq!(changed, 1, "multinomial: one cell of one row");
     }
 }

@@ -4,6 +4,7 @@ use crate::features::Vocabulary;
 use crate::text::TermBag;
 
 use super::nb::Model;
+use super::rows::Place;
 
 /// Reusable buffers for scoring, one per worker.
 #[derive(Debug, Default, Clone)]
@@ -12,6 +13,8 @@ pub struct ScoreScratch {
     pub scores: Vec<f64>,
     /// Known terms of the last record: (row, weight, index in the bag).
     pub hits: Vec<(u32, f64, u32)>,
+    /// Where the rows of `hits` live, while scoring.
+    places: Vec<Place>,
 }
 
 /// The outcome of scoring one record.
@@ -34,27 +37,38 @@ impl Model {
     /// Score a record. Unknown terms are ignored, as a fixed-vocabulary
     /// reference implementation does. Ties go to the lowest class index.
     pub fn score(&self, bag: &TermBag, s: &mut ScoreScratch) -> Scored {
-        let k = self.k;
         s.scores.clear();
         s.scores.extend_from_slice(&self.log_prior);
         s.hits.clear();
-        let interned = matches!(self.vocab, Vocabulary::Interned { .. });
+        let interned = matches!(self.vocab, Vocabulary::Interned(_));
         let mut known_w = 0.0;
         let mut total_w = 0.0;
+        // Three passes, so the memory reads of different terms overlap instead of
+        // waiting on each other: every vocabulary probe, every row's place, every row.
         for i in 0..bag.len() {
             let (term, w) = bag.get(i);
             total_w += w;
-            let Some(id) = self.vocab.lookup(term) else { continue };
-            if interned && self.row_totals[id as usize] == 0.0 {
+            if let Some(id) = self.vocab.lookup(term) {
+                s.hits.push((id, w, i as u32));
+            }
+        }
+        s.places.clear();
+        s.places.extend(s.hits.iter().map(|h| self.cells.place(h.0)));
+        let mut kept = 0;
+        for j in 0..s.hits.len() {
+            let (_, w, _) = s.hits[j];
+            let (row_total, row) = self.cells.weights_at(s.places[j]);
+            if interned && row_total == 0.0 {
                 continue;
             }
             known_w += w;
-            s.hits.push((id, w, i as u32));
-            let row = &self.logw[id as usize * k..id as usize * k + k];
+            s.hits[kept] = s.hits[j];
+            kept += 1;
             for (acc, lw) in s.scores.iter_mut().zip(row) {
                 *acc += w * lw;
             }
         }
+        s.hits.truncate(kept);
         for (acc, n) in s.scores.iter_mut().zip(&self.norm) {
             *acc -= known_w * n;
         }

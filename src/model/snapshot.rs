@@ -118,7 +118,7 @@ impl Loaded {
 /// Encode a model into the file format.
 pub fn encode(model: &Model, meta: &SnapshotMeta) -> Vec<u8> {
     let (max_vocabulary, hash_buckets) = match &model.vocab {
-        Vocabulary::Interned { max, .. } => (*max, 0),
+        Vocabulary::Interned(v) => (v.max(), 0),
         Vocabulary::Hashed { buckets } => (0, *buckets as usize),
     };
     let header = Header {
@@ -136,15 +136,15 @@ pub fn encode(model: &Model, meta: &SnapshotMeta) -> Vec<u8> {
         meta: meta.clone(),
     };
     let head = serde_json::to_vec(&header).expect("header serializes");
-    let body_len = model.counts.len() * 8 + model.k * 8 + model.vocab.terms().iter().map(|t| t.len() + 4).sum::<usize>();
+    let body_len = model.rows() * model.k * 8 + model.k * 8 + model.vocab.terms().map(|t| t.len() + 4).sum::<usize>();
     let mut out = Vec::with_capacity(16 + head.len() + body_len + 4 + CHECKSUM_LEN);
     out.extend_from_slice(MAGIC);
     out.extend_from_slice(&FORMAT_VERSION.to_le_bytes());
     out.extend_from_slice(&(head.len() as u32).to_le_bytes());
     out.extend_from_slice(&head);
-    if let Vocabulary::Interned { terms, .. } = &model.vocab {
-        out.extend_from_slice(&(terms.len() as u32).to_le_bytes());
-        for t in terms {
+    if let Vocabulary::Interned(v) = &model.vocab {
+        out.extend_from_slice(&(v.len() as u32).to_le_bytes());
+        for t in v.terms() {
             out.extend_from_slice(&(t.len() as u32).to_le_bytes());
             out.extend_from_slice(t.as_bytes());
         }
@@ -152,8 +152,10 @@ pub fn encode(model: &Model, meta: &SnapshotMeta) -> Vec<u8> {
     for d in &model.doc_counts {
         out.extend_from_slice(&d.to_le_bytes());
     }
-    for v in &model.counts {
-        out.extend_from_slice(&v.to_le_bytes());
+    for id in 0..model.rows() as u32 {
+        for v in model.row(id) {
+            out.extend_from_slice(&v.to_le_bytes());
+        }
     }
     let sum = blake3::hash(&out);
     out.extend_from_slice(sum.as_bytes());
@@ -261,9 +263,9 @@ pub fn decode(bytes: &[u8], name: &str, expected: Option<&AnalyzerSettings>) -> 
                 let len = r.u32().ok_or_else(|| trunc("vocabulary"))? as usize;
                 let t = r.take(len).ok_or_else(|| trunc("vocabulary"))?;
                 let t = std::str::from_utf8(t).map_err(|_| corrupt("a term is not UTF-8".into()))?;
-                terms.push(Box::<str>::from(t));
+                terms.push(t);
             }
-            Vocabulary::from_terms(terms, header.max_vocabulary).map_err(corrupt)?
+            Vocabulary::from_term_iter(terms, header.max_vocabulary).map_err(corrupt)?
         }
         VocabularyKind::Hashed => {
             if header.hash_buckets != rows || rows == 0 {
@@ -273,11 +275,13 @@ pub fn decode(bytes: &[u8], name: &str, expected: Option<&AnalyzerSettings>) -> 
         }
     };
     let doc_counts = r.f64s(k).ok_or_else(|| trunc("document counts"))?;
-    let counts = r.f64s(rows * k).ok_or_else(|| trunc("counts"))?;
+    // The counts are read straight from the bytes into the model's rows, with no flat copy.
+    let counts = r.take(rows * k * 8).ok_or_else(|| trunc("counts"))?;
+    let counts = counts.chunks_exact(8).map(|c| f64::from_le_bytes(c.try_into().unwrap()));
     if r.at != body_end {
         return Err(corrupt(format!("{} unexpected bytes after the counts", body_end - r.at)));
     }
-    if doc_counts.iter().chain(&counts).any(|v| !v.is_finite() || *v < 0.0) {
+    if doc_counts.iter().copied().chain(counts.clone()).any(|v| !v.is_finite() || v < 0.0) {
         return Err(corrupt("a count is negative or not finite".into()));
     }
     let model = Model::from_counts(header.params, header.analyzer, header.classes, vocab, doc_counts, counts)
@@ -359,8 +363,48 @@ mod tests {
             assert_eq!(loaded.meta, meta());
             assert_eq!(loaded.model.fingerprint(), m.fingerprint());
             assert_eq!(encode(&loaded.model, &loaded.meta), bytes, "{kind:?}");
-            assert_eq!(loaded.model.logw, m.logw);
+            assert_eq!(loaded.model.cells.logw_flat(), m.cells.logw_flat());
         }
+    }
+
+    /// Files in `tests/fixtures/` were written by the code before the shared row and
+    /// vocabulary layout (commit 2aeec90), from the records `fixture_model` learns.
+    #[test]
+    fn format_v1_files_written_before_the_shared_layout_load_unchanged() {
+        let files: [(&[u8], VocabularyKind); 2] = [
+            (include_bytes!("../../tests/fixtures/format-v1-interned.svm"), VocabularyKind::Interned),
+            (include_bytes!("../../tests/fixtures/format-v1-hashed.svm"), VocabularyKind::Hashed),
+        ];
+        for (bytes, kind) in files {
+            // Loading checks the stored count fingerprint, computed by the old code.
+            let loaded = decode(bytes, "fixture", None).unwrap();
+            assert_eq!(loaded.meta.model_version, "fixture-v1");
+            assert_eq!(encode(&loaded.model, &loaded.meta), bytes, "{kind:?}: re-encoding gives the same bytes");
+            let rebuilt = fixture_model(kind);
+            assert_eq!(rebuilt.fingerprint(), loaded.model.fingerprint(), "{kind:?}");
+            assert_eq!(rebuilt.term_counts(), loaded.model.term_counts());
+            assert_eq!(rebuilt.cells.logw_flat(), loaded.model.cells.logw_flat());
+            assert_eq!(encode(&rebuilt, &loaded.meta), bytes, "{kind:?}: the same model encodes to the old file");
+        }
+    }
+
+    fn fixture_model(kind: VocabularyKind) -> Model {
+        let mut m = Model::new(
+            NbParams::multinomial(0.5),
+            Settings::defaults().analyzer,
+            vec!["billing".into(), "returns".into(), "shipping".into()],
+            Vocabulary::new(kind, 100_000, 512),
+        )
+        .unwrap();
+        let mut rng = crate::eval::folds::SplitMix64::new(2026);
+        for r in 0..400 {
+            let mut bag = TermBag::new();
+            for _ in 0..8 {
+                bag.push(&format!("t{}", rng.below(1500)), [1.0, 2.0, 0.5][rng.below(3) as usize]);
+            }
+            m.learn(&bag, ["billing", "returns", "shipping"][r % 3], 1.0).unwrap();
+        }
+        m
     }
 
     #[test]
