@@ -8,7 +8,9 @@
 #
 # Usage: demo-stream/run-on-kafka.sh [WORK_DIR]      (default target/kafka-demo)
 # Environment: RECORDS (default 3000), RATE (records/s, default 300),
-#              KEEP=1 to leave the service and broker running (the status page stays up).
+#              KEEP=1 to leave the service and broker running (the status page stays up;
+#              WORK_DIR/left-running.json then names the service pid, admin port and broker),
+#              SIEVELINE_BIN to use a built binary instead of building one.
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
 cd "$root"
@@ -18,9 +20,13 @@ rate="${RATE:-300}"
 broker="$root/scripts/test-broker/broker.sh"
 say() { printf '\n== %s\n' "$*" >&2; }
 
-say "building sieveline (release)"
-cargo build --release --bins -q
-bin="$root/target/release/sieveline"
+if [ -n "${SIEVELINE_BIN:-}" ]; then
+  bin="$SIEVELINE_BIN"
+else
+  say "building sieveline (release)"
+  cargo build --release --bins -q
+  bin="$root/target/release/sieveline"
+fi
 
 say "starting the test broker in $work/broker"
 bash "$broker" install
@@ -30,6 +36,8 @@ svc_pid=""
 cleanup() {
   if [ "${KEEP:-0}" = 1 ]; then
     echo "left running: service pid $svc_pid, broker at $bootstrap (stop: kill $svc_pid; $broker stop $work/broker)" >&2
+    printf '{"service_pid":%s,"admin_port":%s,"bootstrap":"%s","broker_dir":"%s"}\n' \
+      "${svc_pid:-0}" "${port:-0}" "$bootstrap" "$work/broker" > "$work/left-running.json"
     return
   fi
   [ -n "$svc_pid" ] && kill -TERM "$svc_pid" 2>/dev/null && wait "$svc_pid" 2>/dev/null || true

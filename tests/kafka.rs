@@ -9,3 +9,4 @@ mod learning_kafka;
 mod scale_out;
 mod check_config;
 mod deploy_docker;
+mod demo_kafka;
