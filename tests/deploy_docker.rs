@@ -115,7 +115,7 @@ fn image_build_steps_and_entry_command_run_and_serve() {
     let workdir = staged(report["workdir"].as_str().unwrap());
     let log = dir.join("entry.log");
     let logf = std::fs::File::create(&log).unwrap();
-    let mut child = Command::new(&argv[0])
+    let child = Command::new(&argv[0])
         .args(&argv[1..])
         .current_dir(&workdir)
         .env_clear()
@@ -126,6 +126,7 @@ fn image_build_steps_and_entry_command_run_and_serve() {
         .stderr(logf)
         .spawn()
         .expect("run the entry command");
+    let mut child = KillOnDrop(child);
     let log_text = || std::fs::read_to_string(&log).unwrap_or_default();
     common::wait_for(Duration::from_secs(60), "the entry command is ready", || {
         if let Ok(Some(st)) = child.try_wait() {
@@ -174,4 +175,29 @@ fn image_build_steps_and_entry_command_run_and_serve() {
 fn effective_uid() -> u32 {
     let status = std::fs::read_to_string("/proc/self/status").unwrap();
     status.lines().find(|l| l.starts_with("Uid:")).unwrap().split_whitespace().nth(2).unwrap().parse().unwrap()
+}
+
+/// The entry command's process, killed if the test fails before it stops it.
+struct KillOnDrop(std::process::Child);
+
+impl std::ops::Deref for KillOnDrop {
+    type Target = std::process::Child;
+    fn deref(&self) -> &Self::Target {
+        &self.0
+    }
+}
+
+impl std::ops::DerefMut for KillOnDrop {
+    fn deref_mut(&mut self) -> &mut Self::Target {
+        &mut self.0
+    }
+}
+
+impl Drop for KillOnDrop {
+    fn drop(&mut self) {
+        if let Ok(None) = self.0.try_wait() {
+            let _ = self.0.kill();
+            let _ = self.0.wait();
+        }
+    }
 }
