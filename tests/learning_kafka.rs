@@ -1,4 +1,4 @@
-//! Online learning against a real broker: labels change decisions and equal an offline fold, corrections undo the wrong lesson, bad label events become dead letters, replicas (one SIGKILLed and restarted from its snapshot) converge on the counts of a rebuild from the label topic, and a model swapped in at 20,000 records/s loses nothing and switches once per partition.
+//! Online learning against a real broker: labels change decisions and equal an offline fold, corrections undo the wrong lesson, bad label events become dead letters, replicas (one SIGKILLed and restarted from its snapshot) converge on the counts of a rebuild from the label topic, and a model swapped in at 20,000 records/s loses nothing and switches once per partition, after a truncated file and one with other analyzer settings were refused mid-stream while the old model kept serving.
 //!
 //! Delivery semantics follow Kafka's at-least-once consumption: the
 //! learned-label topic is read by assignment and its position lives in
@@ -321,6 +321,21 @@ fn three_replicas_converge_after_sigkill_and_equal_a_rebuild_from_the_topic() {
     eprintln!("raw-label dead letters: {} ({} unknown id: records scored by the other replica before a rebalance, or never)", reasons.len(), reasons.iter().filter(|r| *r == "unknown id").count());
 }
 
+/// A model trained on the same file as `data::train_model` but with bigrams on: other analyzer settings.
+fn train_with_bigrams(dir: &Path) -> Vec<u8> {
+    let out_path = dir.join("bigrams.svm");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_sieveline"))
+        .env("SIEVELINE__ANALYZER__BIGRAMS", "true")
+        .args(["train", "--input"])
+        .arg(dir.join("train.jsonl"))
+        .arg("--out")
+        .arg(&out_path)
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "train failed: {}", String::from_utf8_lossy(&out.stderr));
+    std::fs::read(out_path).unwrap()
+}
+
 #[test]
 fn model_swapped_in_at_20k_records_per_second_switches_once_per_partition() {
     let brokers = brokers();
@@ -347,8 +362,25 @@ fn model_swapped_in_at_20k_records_per_second_switches_once_per_partition() {
     wait_for(Duration::from_secs(30), "a third of the stream to be scored", || {
         (svc.counter("sieveline_records_in_total").unwrap_or(0.0) >= (n / 3) as f64).then_some(())
     });
-    // Deploy it the way an operator would: rename over the served file, then ask for a reload.
+    // Broken files first, renamed over the served one while the stream runs: each is refused
+    // (by the watcher and by the admin call) and the old model keeps serving.
+    let good = std::fs::read(&fresh).unwrap();
+    let other_analyzer = train_with_bigrams(&dir);
+    let bad: [(&str, Vec<u8>, &str); 2] =
+        [("truncated", good[..good.len() / 2].to_vec(), "truncated"), ("other analyzer settings", other_analyzer, "other analyzer settings")];
     let tmp = dir.join("live.svm.tmp");
+    for (what, bytes, why) in &bad {
+        std::fs::write(&tmp, bytes).unwrap();
+        std::fs::rename(&tmp, &live).unwrap();
+        let (st, body) = http(svc.port, "POST", "/reload?what=model", None, b"").expect("POST /reload");
+        assert_eq!(st, 422, "{what}: {body}");
+        assert!(body.contains(why), "{what}: {body}");
+        assert_eq!(model_info(&svc)["model_version"].as_str().unwrap(), old_version, "{what}: the old model keeps serving");
+    }
+    let refused = svc.metrics().map(|m| common::sample(&m, "sieveline_reloads_total", &[("target", "model"), ("result", "refused")])).unwrap();
+    assert!(refused >= 2.0, "each broken file counted as a refused reload ({refused})");
+
+    // Deploy it the way an operator would: rename over the served file, then ask for a reload.
     std::fs::copy(&fresh, &tmp).unwrap();
     std::fs::rename(&tmp, &live).unwrap();
     let (st, body) = http(svc.port, "POST", "/reload?what=model", None, b"").expect("POST /reload");
