@@ -525,7 +525,7 @@ impl Settings {
 
 choice_enum!(
     /// What the predicted-class mix is compared with (docs/drift.md).
-    DriftReference { Priors => "priors", Baseline => "baseline" }
+    DriftReference { Priors => "priors", Baseline => "baseline", Trailing => "trailing" }
 );
 
 /// Drift and health statistics of the service (docs/drift.md).
@@ -537,6 +537,7 @@ pub struct DriftSettings {
     pub publish_every_records: u64,
     pub publish_interval_ms: u64,
     pub reference: DriftReference,
+    pub baseline_skip_records: u64,
     pub baseline_records: u64,
     pub min_records: u64,
     pub psi_floor: f64,
@@ -591,6 +592,9 @@ impl Settings {
         }
         if !(1..=10_000_000).contains(&d.baseline_records) {
             return Err(invalid("drift.baseline_records", d.baseline_records, "1 to 10000000 records"));
+        }
+        if d.baseline_skip_records > 10_000_000 {
+            return Err(invalid("drift.baseline_skip_records", d.baseline_skip_records, "0 to 10000000 records"));
         }
         if d.min_records < 1 || d.min_records > d.window_records as u64 {
             return Err(invalid("drift.min_records", d.min_records, "1 to drift.window_records"));

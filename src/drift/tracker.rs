@@ -5,7 +5,7 @@ use std::sync::Arc;
 use serde::Serialize;
 
 use super::divergence::{js_divergence_bits, normalise, psi};
-use super::reference::{Baseline, ReferenceKind};
+use super::reference::{Baseline, ReferenceKind, Trailing};
 use super::window::{confidence_bucket_bounds, DecisionWindow, Observation};
 
 /// Settings of the decision side.
@@ -13,6 +13,8 @@ use super::window::{confidence_bucket_bounds, DecisionWindow, Observation};
 pub struct DecisionParams {
     pub window_records: usize,
     pub reference: ReferenceKind,
+    /// Records after start or reload left out of the baseline (a warm-up).
+    pub baseline_skip_records: u64,
     pub baseline_records: u64,
     /// PSI and JS are reported once the window holds this many records.
     pub min_records: u64,
@@ -43,7 +45,7 @@ pub struct DecisionSummary {
     /// Records observed since start.
     pub observed: u64,
     pub reference: ReferenceKind,
-    /// Baseline records counted so far (the baseline reference only).
+    /// Reference records counted so far (the baseline and trailing references only).
     pub baseline_records: Option<u64>,
     pub class_mix: Vec<ClassShare>,
     pub psi: Option<f64>,
@@ -61,19 +63,24 @@ pub struct DecisionTracker {
     params: DecisionParams,
     window: DecisionWindow,
     baseline: Option<Baseline>,
+    trailing: Option<Trailing>,
 }
 
 impl DecisionTracker {
     pub fn new(params: DecisionParams, classes: &[Arc<str>]) -> DecisionTracker {
-        let baseline = (params.reference == ReferenceKind::Baseline).then(|| Baseline::new(params.baseline_records, classes));
-        DecisionTracker { params, window: DecisionWindow::new(params.window_records, classes), baseline }
+        let baseline = (params.reference == ReferenceKind::Baseline).then(|| Baseline::new(params.baseline_skip_records, params.baseline_records, classes));
+        let trailing = (params.reference == ReferenceKind::Trailing).then(|| Trailing::new(params.baseline_records, classes));
+        DecisionTracker { params, window: DecisionWindow::new(params.window_records, classes), baseline, trailing }
     }
 
     #[inline]
     pub fn observe(&mut self, o: &Observation) {
-        self.window.observe(o);
+        let left = self.window.observe(o);
         if let Some(b) = &mut self.baseline {
             b.observe(o.class);
+        }
+        if let (Some(t), Some(class)) = (&mut self.trailing, left) {
+            t.push(class);
         }
     }
 
@@ -87,12 +94,18 @@ impl DecisionTracker {
         if let Some(b) = &mut self.baseline {
             b.set_classes(classes);
         }
+        if let Some(t) = &mut self.trailing {
+            t.set_classes(classes);
+        }
     }
 
     /// Count a new baseline from the next records (after a model reload).
     pub fn repin(&mut self) {
         if let Some(b) = &mut self.baseline {
             b.repin();
+        }
+        if let Some(t) = &mut self.trailing {
+            t.clear();
         }
     }
 
@@ -101,9 +114,11 @@ impl DecisionTracker {
         let c = self.window.counts();
         let classes = self.window.classes();
         let window: Vec<f64> = c.class_counts.iter().map(|&n| n as f64).collect();
-        let reference: Option<Vec<f64>> = match &self.baseline {
-            None => (doc_counts.len() == classes.len() && doc_counts.iter().sum::<f64>() > 0.0).then(|| doc_counts.to_vec()),
-            Some(b) => b.counts().map(|cs| cs.iter().map(|&n| n as f64).collect()),
+        let pinned = |cs: Option<&[u64]>| cs.map(|cs| cs.iter().map(|&n| n as f64).collect());
+        let reference: Option<Vec<f64>> = match (&self.baseline, &self.trailing) {
+            (Some(b), _) => pinned(b.counts()),
+            (_, Some(t)) => pinned(t.counts()),
+            (None, None) => (doc_counts.len() == classes.len() && doc_counts.iter().sum::<f64>() > 0.0).then(|| doc_counts.to_vec()),
         };
         let enough = c.records >= self.params.min_records && window.iter().sum::<f64>() > 0.0;
         let (psi_v, js_v) = match (&reference, enough) {
@@ -127,7 +142,7 @@ impl DecisionTracker {
             window_capacity: self.window.capacity() as u64,
             observed: c.observed,
             reference: self.params.reference,
-            baseline_records: self.baseline.as_ref().map(Baseline::seen),
+            baseline_records: self.baseline.as_ref().map(Baseline::seen).or(self.trailing.as_ref().map(Trailing::seen)),
             class_mix,
             psi: psi_v,
             js_divergence_bits: js_v,
@@ -153,7 +168,7 @@ mod tests {
     }
 
     fn params(reference: ReferenceKind) -> DecisionParams {
-        DecisionParams { window_records: 100, reference, baseline_records: 100, min_records: 50, psi_floor: 1e-4 }
+        DecisionParams { window_records: 100, reference, baseline_skip_records: 0, baseline_records: 100, min_records: 50, psi_floor: 1e-4 }
     }
 
     fn feed(t: &mut DecisionTracker, mix: [usize; 3], n: usize) {
@@ -195,5 +210,24 @@ mod tests {
         assert!((s.psi.unwrap() - 0.051_082_6).abs() < 1e-6, "{s:?}");
         t.repin();
         assert_eq!(t.summarise(&[]).psi, None);
+    }
+
+    #[test]
+    fn trailing_reference_rises_at_a_change_and_fades_once_the_new_mix_fills_it() {
+        let mut t = DecisionTracker::new(params(ReferenceKind::Trailing), &classes());
+        feed(&mut t, [4, 4, 2], 100);
+        assert_eq!(t.summarise(&[]).psi, None, "nothing has left the window yet");
+        feed(&mut t, [4, 4, 2], 100);
+        let s = t.summarise(&[]);
+        assert_eq!(s.baseline_records, Some(100));
+        assert!(s.psi.unwrap().abs() < 1e-12, "same mix before and in the window: {s:?}");
+        // The change: the window holds the new mix, the trailing records the old one.
+        feed(&mut t, [5, 3, 2], 100);
+        assert!((t.summarise(&[]).psi.unwrap() - 0.051_082_6).abs() < 1e-6);
+        // Once the new mix has filled the trailing records too, it is the normal again.
+        feed(&mut t, [5, 3, 2], 100);
+        assert!(t.summarise(&[]).psi.unwrap().abs() < 1e-12);
+        t.repin();
+        assert_eq!(t.summarise(&[]).psi, None, "a reload starts the trailing records afresh");
     }
 }

@@ -13,7 +13,7 @@ pub fn confidence_bucket_bounds() -> [f64; CONFIDENCE_BUCKETS] {
     std::array::from_fn(|i| (i + 1) as f64 / CONFIDENCE_BUCKETS as f64)
 }
 
-const NO_CLASS: u16 = u16::MAX;
+pub(crate) const NO_CLASS: u16 = u16::MAX;
 
 #[derive(Debug, Clone, Copy, Default)]
 struct Entry {
@@ -128,7 +128,9 @@ impl DecisionWindow {
 
     /// Add one record, dropping the oldest once full.
     #[inline]
-    pub fn observe(&mut self, o: &Observation) {
+    /// Add one record; returns the class of the record it pushed out of a full window
+    /// (`Some(None)` for one with no class), or `None` while the window is filling.
+    pub fn observe(&mut self, o: &Observation) -> Option<Option<usize>> {
         let conf = if o.confidence.is_finite() { o.confidence.clamp(0.0, 1.0) } else { 0.0 };
         let known = o.known_tokens.min(o.total_tokens);
         let e = Entry {
@@ -143,15 +145,18 @@ impl DecisionWindow {
             known,
             total: o.total_tokens,
         };
-        if self.ring.len() < self.capacity {
+        let left = if self.ring.len() < self.capacity {
             self.ring.push(e);
+            None
         } else {
             let old = std::mem::replace(&mut self.ring[self.next], e);
             self.remove(&old);
-        }
+            Some((old.class != NO_CLASS).then_some(old.class as usize))
+        };
         self.next = (self.next + 1) % self.capacity;
         self.add(&e);
         self.observed += 1;
+        left
     }
 
     #[inline]

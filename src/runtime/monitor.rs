@@ -33,7 +33,9 @@ pub fn decision_params(d: &DriftSettings) -> DecisionParams {
         reference: match d.reference {
             DriftReference::Priors => ReferenceKind::Priors,
             DriftReference::Baseline => ReferenceKind::Baseline,
+            DriftReference::Trailing => ReferenceKind::Trailing,
         },
+        baseline_skip_records: d.baseline_skip_records,
         baseline_records: d.baseline_records,
         min_records: d.min_records,
         psi_floor: d.psi_floor,
