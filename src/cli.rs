@@ -92,8 +92,12 @@ pub struct ModelArgs {
 #[derive(Debug, Args)]
 pub struct TrainArgs {
     /// Labelled input file, or - for stdin.
-    #[arg(long, short, required_unless_present_any = ["labels", "from_topic"], conflicts_with_all = ["labels", "from_topic"])]
+    #[arg(long, short, required_unless_present_any = ["labels", "from_topic", "classes"], conflicts_with_all = ["labels", "from_topic", "classes"])]
     pub input: Option<PathBuf>,
+    /// Day one, no labels yet: write an empty model of these classes (comma-separated), for
+    /// the service to start from while rules decide and the learner fills it from the label log.
+    #[arg(long, value_name = "CLASS,...", value_delimiter = ',', conflicts_with_all = ["labels", "from_topic"])]
+    pub classes: Option<Vec<String>>,
     /// Fold a label log instead: a JSONL file of complete label events (with corrections),
     /// learned in file order exactly as the service folds its label log.
     #[arg(long, value_name = "FILE", conflicts_with = "from_topic")]

@@ -8,7 +8,7 @@ use indicatif::{ProgressBar, ProgressStyle};
 use serde_json::json;
 
 use crate::cli::TrainArgs;
-use crate::error::DatasetError;
+use crate::error::{DatasetError, SettingsError};
 use crate::features::Vocabulary;
 use crate::io::dataset;
 use crate::model::snapshot::{self, SnapshotMeta};
@@ -18,10 +18,44 @@ use crate::text::{Analyzer, AnalyzerScratch, TermBag};
 
 use super::{apply_model_args, input_spec, Skipped};
 
+/// `train --classes`: an empty model of the named classes, recording no label-log offsets
+/// (a service that loads it folds the whole label log on top).
+fn empty_model(settings: &Settings, classes: &[String], args: &TrainArgs) -> Result<()> {
+    let bad = |why: &str| SettingsError::Invalid { key: "--classes".into(), value: classes.join(","), allowed: why.into() };
+    let mut names: Vec<String> = classes.iter().map(|c| c.trim().to_string()).collect();
+    if names.is_empty() || names.iter().any(String::is_empty) {
+        return Err(bad("one or more non-empty class names").into());
+    }
+    names.sort();
+    if names.windows(2).any(|w| w[0] == w[1]) {
+        return Err(bad("each class named once").into());
+    }
+    let m = &settings.model;
+    let model = Model::new(
+        NbParams::from_settings(m),
+        settings.analyzer.clone(),
+        names,
+        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
+    )?;
+    let meta = SnapshotMeta::fresh(&model, args.model_version.clone());
+    let checksum = snapshot::write(&args.out, &model, &meta)?;
+    eprintln!(
+        "wrote {} (empty model of {} classes, version {}, checksum {})",
+        args.out.display(),
+        model.classes().len(),
+        meta.model_version,
+        &checksum[..16]
+    );
+    Ok(())
+}
+
 pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
     apply_model_args(&mut settings, &args.model)?;
     if args.labels.is_some() || args.from_topic.is_some() {
         return super::train_log::run(settings, args);
+    }
+    if let Some(classes) = &args.classes {
+        return empty_model(&settings, classes, args);
     }
     let label_offsets = super::train_log::offsets_at_train_time(&settings, &args.label_offsets)?;
     let input = args.input.as_ref().expect("clap requires --input or --labels");
