@@ -42,8 +42,9 @@ fn main() {
         return;
     }
     if mode == "parts" {
-        // Wall time of the parts, alternating: analyze; + match; + model decision; the decider without and with rules.
-        let mut times = vec![Vec::new(); 5];
+        // Wall time of the parts, alternating: analyze; + match; + model decision; the decider without and with rules;
+        // analyze, match and the model decision without the blend (how much the blend adds to matching).
+        let mut times = vec![Vec::new(); 6];
         for _ in 0..rounds {
             for (p, v) in times.iter_mut().enumerate() {
                 let t = std::time::Instant::now();
@@ -62,6 +63,11 @@ fn main() {
                         3 => {
                             std::hint::black_box(decider.decide(&analyzer, None, Some(&model), "v", None, &f, &mut s));
                         }
+                        5 => {
+                            s.terms.analyze(&analyzer, &f, &mut s.analyzer);
+                            std::hint::black_box(set.matches(&s.terms, &f, &mut s.work.rules));
+                            std::hint::black_box(decide_by_model(&model, "v", None, &s.terms.bag, &policy, 3, &mut ds));
+                        }
                         _ => {
                             std::hint::black_box(decider.decide(&analyzer, Some(&set), Some(&model), "v", None, &f, &mut s));
                         }
@@ -72,8 +78,8 @@ fn main() {
         }
         let med: Vec<f64> = times.into_iter().map(|mut v| { v.sort_by(f64::total_cmp); v[v.len() / 2] }).collect();
         eprintln!(
-            "parts (µs per record, medians of {rounds}): analyze {:.3}, +match {:.3}, +model decision {:.3}; decider without rules {:.3}, with rules {:.3}; ratio {:.3}",
-            med[0], med[1] - med[0], med[2] - med[0], med[3], med[4], med[2] / med[4]
+            "parts (µs per record, medians of {rounds}): analyze {:.3}, +match {:.3}, +model decision {:.3}; decider without rules {:.3}, with rules {:.3}; ratio {:.3}; analyze+match+model decision, no blend {:.3}",
+            med[0], med[1] - med[0], med[2] - med[0], med[3], med[4], med[2] / med[4], med[5]
         );
         return;
     }

@@ -8,7 +8,7 @@ use rustc_hash::FxHashMap;
 use super::error::{Problem, RulesError};
 use super::format::{line_of, rule_id_at, RawFile, RawRule, RawWhen};
 use super::index::TermIndex;
-use super::ruleset::{Action, Cond, CondKind, Item, Posting, Rule, RuleMeta, RuleSet, ANY_FIELD};
+use super::ruleset::{Action, Cond, CondKind, Item, Posting, Rule, RuleMeta, RuleSet, ANY_FIELD, PHRASE};
 use crate::settings::AnalyzerSettings;
 use crate::text::{Analyzer, AnalyzerScratch, TermBag};
 
@@ -387,26 +387,28 @@ impl<'a> Builder<'a> {
     fn finish(self, text: &str, source: &str) -> RuleSet {
         let Builder { mut rules, conds, items, regexes, regex_conds, analyzer, fields, .. } = self;
         // The term index: first token → postings, grouped so one lookup finds them all.
-        let mut by_token: FxHashMap<Box<str>, Vec<Posting>> = FxHashMap::default();
+        let mut by_token: FxHashMap<Box<str>, Vec<(Posting, u32)>> = FxHashMap::default();
         for (i, item) in items.iter().enumerate() {
             let c = &conds[item.cond as usize];
-            by_token.entry(item.tokens[0].clone()).or_default().push(Posting {
-                item: i as u32,
-                cond: item.cond,
-                rule: c.rule,
-                field: c.field.map_or(ANY_FIELD, |f| f as u32),
-                len: item.tokens.len() as u32,
-                need: c.at_least,
-            });
+            // Field indices come from the settings' list of input fields, far
+            // below the bits kept for "any field" and the phrase mark.
+            let field = c.field.map_or(ANY_FIELD, |f| u32::try_from(f).ok().filter(|&f| f < ANY_FIELD).expect("field index below 2^31 - 1"));
+            let phrase = if item.tokens.len() > 1 { PHRASE } else { 0 };
+            let posting = Posting { cond: item.cond, rule: c.rule, need: c.at_least, scope: field | phrase };
+            by_token.entry(item.tokens[0].clone()).or_default().push((posting, i as u32));
         }
         let mut keys: Vec<Box<str>> = by_token.keys().cloned().collect();
         keys.sort();
         let mut index = TermIndex::default();
         let mut postings = Vec::with_capacity(items.len());
+        let mut posting_items = Vec::with_capacity(items.len());
         for k in keys {
             let v = by_token.remove(&k).expect("key listed");
             let start = postings.len() as u32;
-            postings.extend(v);
+            for (p, item) in v {
+                postings.push(p);
+                posting_items.push(item);
+            }
             index.insert(&k, (start, postings.len() as u32));
         }
         // A regex in a rule that also has an `any` or `all` condition is checked
@@ -480,6 +482,7 @@ impl<'a> Builder<'a> {
             items,
             index,
             postings,
+            posting_items,
             regex_set,
             regexes,
             regex_conds,

@@ -1,4 +1,4 @@
-//! The term index of a rule set: first token → range of postings. Terms of up to 16 bytes (nearly all) are keyed by their bytes packed into two words, so a lookup hashes two words and compares the key in the table itself, with no pointer to follow and no call; longer terms go to a map keyed by the string.
+//! The term index of a rule set: first token → range of postings. Terms of up to 16 bytes (nearly all) are keyed by their bytes packed into two words, in an open-addressing table of slot words (a key's number and 32 bits of its hash): a lookup mixes the two words with two multiplications and reads slots until an empty one or a matching hash, so record tokens that no rule lists rarely touch the keys; longer terms go to a map keyed by the string.
 
 use rustc_hash::FxHashMap;
 
@@ -8,7 +8,7 @@ const SHORT: usize = 16;
 /// A term of at most 16 bytes as two little-endian words, zero-padded. Terms
 /// hold no NUL byte (the analyzer never makes one), so padding cannot make two
 /// terms equal. Loads overlapping words instead of copying byte by byte.
-#[inline]
+#[inline(always)]
 fn pack(term: &str) -> Option<[u64; 2]> {
     let b = term.as_bytes();
     let n = b.len();
@@ -24,9 +24,38 @@ fn pack(term: &str) -> Option<[u64; 2]> {
     })
 }
 
+/// Multipliers of the slot hash (odd 64-bit constants with mixed bits; the
+/// first is 2^64 divided by the golden ratio, common practice for
+/// multiplicative hashing).
+const MIX_A: u64 = 0x9E37_79B9_7F4A_7C15;
+const MIX_B: u64 = 0xD6E8_FEB8_6659_FD93;
+
+/// The high half of a slot word.
+const TAG: u64 = 0xFFFF_FFFF << 32;
+
+#[inline(always)]
+fn hash(key: [u64; 2]) -> u64 {
+    (key[0].wrapping_mul(MIX_A) ^ key[1]).wrapping_mul(MIX_B)
+}
+
+/// 32 bits of the hash below the ones that pick the slot (for tables of up
+/// to 2^12 slots; larger ones share some), kept in a slot to skip most keys
+/// that only share the slot.
+#[inline(always)]
+fn tag(h: u64) -> u64 {
+    (h >> 20) << 32
+}
+
 #[derive(Debug, Clone, Default)]
 pub(crate) struct TermIndex {
-    short: FxHashMap<[u64; 2], (u32, u32)>,
+    /// Open addressing with linear probing over `keys`: 0 is an empty slot,
+    /// otherwise the low half k names `keys[k - 1]` and the high half is
+    /// `tag` of its hash. A power of two long, at most half full.
+    slots: Vec<u64>,
+    /// 64 minus log2 of `slots.len()`: the hash's top bits pick the slot.
+    shift: u32,
+    /// Packed short terms and their posting ranges, in insertion order.
+    keys: Vec<([u64; 2], (u32, u32))>,
     long: FxHashMap<Box<str>, (u32, u32)>,
 }
 
@@ -34,23 +63,78 @@ impl TermIndex {
     pub(crate) fn insert(&mut self, term: &str, range: (u32, u32)) {
         debug_assert!(!term.contains('\0'), "analyzed terms hold no NUL byte");
         match pack(term) {
-            Some(k) => self.short.insert(k, range),
-            None => self.long.insert(term.into(), range),
-        };
+            Some(k) => self.insert_short(k, range),
+            None => {
+                self.long.insert(term.into(), range);
+            }
+        }
+    }
+
+    fn insert_short(&mut self, key: [u64; 2], range: (u32, u32)) {
+        if let Some(at) = self.find(key) {
+            self.keys[at].1 = range;
+            return;
+        }
+        self.keys.push((key, range));
+        if self.keys.len() * 2 > self.slots.len() {
+            let size = (self.keys.len() * 2).next_power_of_two().max(16);
+            self.slots = vec![0; size];
+            self.shift = 64 - size.trailing_zeros();
+            for k in 0..self.keys.len() {
+                self.place(k);
+            }
+        } else {
+            self.place(self.keys.len() - 1);
+        }
+    }
+
+    /// Put `keys[k]` into the first free slot of its probe sequence.
+    fn place(&mut self, k: usize) {
+        let mask = self.slots.len() - 1;
+        let h = hash(self.keys[k].0);
+        let mut at = (h >> self.shift) as usize;
+        while self.slots[at] != 0 {
+            at = (at + 1) & mask;
+        }
+        self.slots[at] = tag(h) | u64::from(u32::try_from(k + 1).expect("fewer than 2^32 terms"));
+    }
+
+    /// Position of `key` in `keys`.
+    #[inline]
+    fn find(&self, key: [u64; 2]) -> Option<usize> {
+        if self.slots.is_empty() {
+            return None;
+        }
+        let mask = self.slots.len() - 1;
+        let h = hash(key);
+        let (mut at, want) = ((h >> self.shift) as usize, tag(h));
+        loop {
+            let slot = self.slots[at];
+            if slot == 0 {
+                return None;
+            }
+            if slot & TAG == want {
+                let k = (slot as u32) as usize - 1;
+                if self.keys[k].0 == key {
+                    return Some(k);
+                }
+            }
+            at = (at + 1) & mask;
+        }
     }
 
     /// The posting range of `term`, if a rule lists it first.
-    #[inline]
+    #[inline(always)]
     pub(crate) fn get(&self, term: &str) -> Option<(u32, u32)> {
         match pack(term) {
-            Some(k) => self.short.get(&k).copied(),
+            Some(k) => self.find(k).map(|at| self.keys[at].1),
             None => self.long.get(term).copied(),
         }
     }
 
     /// Distinct terms in the index.
     pub(crate) fn len(&self) -> usize {
-        self.short.len() + self.long.len()
+        self.keys.len() + self.long.len()
     }
 }
 
@@ -85,5 +169,29 @@ mod tests {
         for miss in ["", "refunds", "refun", "exactly16bytes!", "seventeen-bytes!", "a-much-longer-term-than-sixteen!", "ab"] {
             assert_eq!(idx.get(miss), None, "{miss:?}");
         }
+    }
+
+    #[test]
+    fn a_growing_table_finds_every_term_and_a_repeat_replaces_its_range() {
+        let mut idx = TermIndex::default();
+        assert_eq!(idx.get("anything"), None);
+        let terms: Vec<String> = (0..3000).map(|i| format!("t{i}")).collect();
+        for (i, t) in terms.iter().enumerate() {
+            idx.insert(t, (i as u32, i as u32 + 1));
+            // Every term so far is still found after each growth of the table.
+            if i.is_power_of_two() {
+                for (j, u) in terms[..=i].iter().enumerate() {
+                    assert_eq!(idx.get(u), Some((j as u32, j as u32 + 1)), "{u} after {i}");
+                }
+            }
+        }
+        assert_eq!(idx.len(), 3000);
+        assert!(idx.slots.len() >= 2 * idx.keys.len());
+        for (i, t) in terms.iter().enumerate() {
+            assert_eq!(idx.get(t), Some((i as u32, i as u32 + 1)), "{t}");
+            assert_eq!(idx.get(&format!("u{i}")), None);
+        }
+        idx.insert("t7", (9, 10));
+        assert_eq!((idx.get("t7"), idx.len()), (Some((9, 10)), 3000));
     }
 }

@@ -31,7 +31,8 @@ struct RuleState {
 #[derive(Debug, Default, Clone)]
 pub struct MatchScratch {
     epoch: u32,
-    item_mark: Vec<u32>,
+    /// Per posting (one per item): the epoch in which its item was found.
+    post_mark: Vec<u32>,
     /// Per condition: (epoch of `hits`, hits this record).
     conds: Vec<(u32, u32)>,
     /// Per rule, in one record so a hit touches one place.
@@ -50,9 +51,9 @@ pub struct MatchScratch {
 
 impl MatchScratch {
     fn begin(&mut self, set: &RuleSet) {
-        let (ni, nc, nr) = (set.items.len(), set.conds.len(), set.rules.len());
-        if self.item_mark.len() < ni {
-            self.item_mark.resize(ni, 0);
+        let (np, nc, nr) = (set.postings.len(), set.conds.len(), set.rules.len());
+        if self.post_mark.len() < np {
+            self.post_mark.resize(np, 0);
         }
         if self.conds.len() < nc {
             self.conds.resize(nc, (0, 0));
@@ -64,7 +65,7 @@ impl MatchScratch {
             self.rules.resize(nr, RuleState::default());
         }
         if self.epoch == u32::MAX {
-            self.item_mark.fill(0);
+            self.post_mark.fill(0);
             self.conds.fill((0, 0));
             self.rules.fill(RuleState::default());
             self.epoch = 0;
@@ -191,17 +192,22 @@ impl RuleSet {
     #[inline]
     fn term_hits<'t>(&self, term: &str, field: u32, s: &mut MatchScratch, next: impl Fn(usize) -> Option<&'t str>) {
         let Some((a, b)) = self.index.get(term) else { return };
-        for post in &self.postings[a as usize..b as usize] {
-            if post.field != ANY_FIELD && post.field != field {
+        let (a, b) = (a as usize, b as usize);
+        for (p, post) in self.postings[a..b].iter().enumerate().map(|(k, post)| (a + k, post)) {
+            let scope = post.field();
+            if scope != ANY_FIELD && scope != field {
                 continue;
             }
-            if s.item_mark[post.item as usize] == s.epoch {
+            if s.post_mark[p] == s.epoch {
                 continue;
             }
-            if post.len > 1 && !self.items[post.item as usize].tokens[1..].iter().enumerate().all(|(j, t)| next(j + 1) == Some(&**t)) {
-                continue;
+            if post.is_phrase() {
+                let item = &self.items[self.posting_items[p] as usize];
+                if !item.tokens[1..].iter().enumerate().all(|(j, t)| next(j + 1) == Some(&**t)) {
+                    continue;
+                }
             }
-            s.item_mark[post.item as usize] = s.epoch;
+            s.post_mark[p] = s.epoch;
             s.hit(post.cond, post.rule, 1, post.need, &self.meta);
         }
     }
