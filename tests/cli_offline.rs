@@ -1,5 +1,5 @@
 //! The offline commands end to end: documented behaviour on bad input, model-file refusal
-//! with exit code 4, analyzer-mismatch messages naming the setting, settings errors (exit 2).
+//! with exit code 4, analyzer-mismatch messages naming the setting, settings errors (exit 2), and the day-one empty model (`train --classes`).
 
 use crate::support;
 
@@ -180,4 +180,37 @@ fn folding_a_label_log_with_corrections_equals_training_on_the_final_labels() {
     let direct = dir.path().join("direct.svm");
     run_ok(&["train", "--labels", &labels2, "--out", direct.to_str().unwrap()]);
     assert_eq!(fp(&folded), fp(&direct), "learn wrong + correct == learn right once");
+}
+
+#[test]
+fn an_empty_model_of_named_classes_starts_day_one_and_folds_like_no_base() {
+    let dir = tempfile::tempdir().unwrap();
+    let empty = dir.path().join("empty.svm");
+    run_ok(&["train", "--classes", "shipping,returns", "--out", empty.to_str().unwrap()]);
+    let v = json_stdout(&run_ok(&["inspect", "--model", empty.to_str().unwrap(), "--json"]));
+    let classes: Vec<&str> = v["classes"].as_array().unwrap().iter().map(|c| c["class"].as_str().unwrap()).collect();
+    assert_eq!(classes, ["returns", "shipping"], "sorted, as every model's classes");
+    assert!(v["classes"].as_array().unwrap().iter().all(|c| c["documents"] == 0.0), "{v}");
+    assert_eq!(v["label_offsets"], serde_json::json!({}), "a service replays the whole label log on top");
+    // Scoring with it sends every record to review: there is no model yet.
+    let rec = write(dir.path(), "rec.jsonl", br#"{"id":"x","subject":"refund","body":"refund please"}"#);
+    let d = json_stdout(&run_ok(&["classify", "--model", empty.to_str().unwrap(), "--input", &rec]));
+    assert_eq!(d["review"], "no_model", "{d}");
+    // Folding a label log on top of it gives the same counts as folding it onto nothing.
+    let log = concat!(
+        r#"{"id":"a","class":"returns","fields":{"subject":"Refund","body":"refund the boots"}}"#, "\n",
+        r#"{"id":"b","class":"shipping","fields":{"subject":"Parcel late","body":"courier lost it"}}"#, "\n",
+    );
+    let labels = write(dir.path(), "labels.jsonl", log.as_bytes());
+    let (on_empty, alone) = (dir.path().join("on-empty.svm"), dir.path().join("alone.svm"));
+    run_ok(&["train", "--labels", &labels, "--base", empty.to_str().unwrap(), "--out", on_empty.to_str().unwrap()]);
+    run_ok(&["train", "--labels", &labels, "--out", alone.to_str().unwrap()]);
+    let fp = |p: &Path| json_stdout(&run_ok(&["inspect", "--model", p.to_str().unwrap(), "--json"]))["count_fingerprint"].clone();
+    assert_eq!(fp(&on_empty), fp(&alone));
+    // A class named twice, or an empty name, is a usage error (exit 2).
+    for bad in ["returns,returns", "returns,,shipping"] {
+        let (code, err) = run_err(&["train", "--classes", bad, "--out", dir.path().join("bad.svm").to_str().unwrap()]);
+        assert_eq!(code, 2, "{bad}: {err}");
+        assert!(err.contains("--classes"), "{bad}: {err}");
+    }
 }

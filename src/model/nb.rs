@@ -181,7 +181,8 @@ impl Model {
 
     /// True until the first document is learned.
     pub fn is_empty(&self) -> bool {
-        self.documents() == 0.0
+        // Counts are never negative, so one non-zero class answers it (no sum over K per record).
+        self.doc_counts.iter().all(|&d| d == 0.0)
     }
 
     /// The K class counts of a row.
