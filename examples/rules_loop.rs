@@ -11,7 +11,7 @@ use sieveline::text::{AnalyzerScratch, TermBag};
 fn main() {
     let rounds: usize = std::env::args().nth(1).and_then(|s| s.parse().ok()).unwrap_or(3);
     let mode = std::env::args().nth(2).unwrap_or_else(|| "rules".into());
-    let rules_gen::Setup { test, settings, analyzer, model, set } = rules_gen::setup();
+    let rules_gen::Setup { test, settings, analyzer, model, set, .. } = rules_gen::setup();
     let policy = ReviewPolicy::from_settings(&settings.review);
     let decider = Decider { blend: BlendMode::ModelFirst, ..Decider::from_settings(&settings) };
     let mut asc = AnalyzerScratch::default();
