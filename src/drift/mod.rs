@@ -2,7 +2,7 @@
 //!
 //! - `divergence`: population stability index (PSI) and Jensen–Shannon divergence;
 //! - `window`: the last N decisions with O(1) updates (class, confidence, unknown tokens, review);
-//! - `reference`: the class mix compared against (training priors, or a pinned baseline);
+//! - `reference`: the class mix compared against (training priors, a pinned baseline, or the trailing records);
 //! - `tracker`: `DecisionTracker`, the decision side owned by the record loop, and its summary;
 //! - `feedback`: prequential accuracy over the last N labels, label delay, change detection;
 //! - `page_hinkley`: the Page–Hinkley test;

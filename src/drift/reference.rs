@@ -1,4 +1,4 @@
-//! The reference class mix that the window is compared with: the model's training priors (its document counts), or a baseline window of the first N records, pinned.
+//! The reference class mix that the window is compared with: the model's training priors (its document counts), a baseline of N records pinned after a warm-up, or the trailing N records just before the window.
 
 use std::collections::VecDeque;
 use std::sync::Arc;
