@@ -22,12 +22,14 @@
 //! - `score_large/score/<size>`: scoring 20-term Zipf records against the model, the
 //!   hot path on a large vocabulary.
 
+#[path = "support/synthetic_model.rs"]
+mod synthetic_model;
+use synthetic_model::synthetic_model;
+
 use criterion::{criterion_group, criterion_main, BatchSize, Criterion, Throughput};
 use rustc_hash::FxHashMap;
 use sieveline::eval::folds::SplitMix64;
-use sieveline::features::Vocabulary;
-use sieveline::model::{Model, NbParams, ScoreScratch};
-use sieveline::settings::{Settings, VocabularyKind};
+use sieveline::model::{Model, ScoreScratch};
 use sieveline::text::TermBag;
 
 const BATCH: usize = 5_000;
@@ -53,31 +55,9 @@ fn setups() -> [Setup; 2] {
     ]
 }
 
-fn name(i: usize) -> String {
-    format!("term{i:07}")
-}
-
 /// The model: every term learned once, 100 terms a record, classes in rotation.
 fn build(setup: &Setup) -> (Model, Vec<String>, Vec<String>) {
-    let classes: Vec<String> = (0..setup.classes).map(|i| format!("class{i:02}")).collect();
-    let mut m = Model::new(
-        NbParams::multinomial(1.0),
-        Settings::defaults().analyzer,
-        classes.clone(),
-        Vocabulary::new(VocabularyKind::Interned, 4_000_000, 0),
-    )
-    .unwrap();
-    let names: Vec<String> = (0..setup.terms).map(name).collect();
-    let mut bag = TermBag::new();
-    for (r, chunk) in names.chunks(100).enumerate() {
-        bag.clear();
-        for t in chunk {
-            bag.push(t, 1.0);
-        }
-        m.learn(&bag, &classes[r % setup.classes], 1.0).unwrap();
-    }
-    assert_eq!(m.vocabulary_size(), setup.terms);
-    (m, names, classes)
+    synthetic_model(setup.terms, setup.classes)
 }
 
 /// Cumulative Zipf (s = 1) weights over `n` ranks.

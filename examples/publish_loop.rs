@@ -12,10 +12,12 @@
 //! `valgrind --tool=cachegrind --cache-sim=yes` the instruction and cache-miss counts do not
 //! depend on machine load.
 
+#[path = "../benches/support/synthetic_model.rs"]
+mod synthetic_model;
+use synthetic_model::synthetic_model;
+
 use sieveline::eval::folds::SplitMix64;
-use sieveline::features::Vocabulary;
-use sieveline::model::{Model, NbParams, ScoreScratch};
-use sieveline::settings::{Settings, VocabularyKind};
+use sieveline::model::{Model, ScoreScratch};
 use sieveline::text::TermBag;
 
 fn main() {
@@ -23,23 +25,7 @@ fn main() {
     let mode = args.get(1).cloned().unwrap_or_else(|| "cycle".into());
     let terms: usize = args.get(2).and_then(|s| s.parse().ok()).unwrap_or(1_000_000);
     let rounds: usize = args.get(3).and_then(|s| s.parse().ok()).unwrap_or(3);
-    let classes: Vec<String> = (0..20).map(|i| format!("class{i:02}")).collect();
-    let mut m = Model::new(
-        NbParams::multinomial(1.0),
-        Settings::defaults().analyzer,
-        classes.clone(),
-        Vocabulary::new(VocabularyKind::Interned, 4_000_000, 0),
-    )
-    .unwrap();
-    let names: Vec<String> = (0..terms).map(|i| format!("term{i:07}")).collect();
-    let mut bag = TermBag::new();
-    for (r, chunk) in names.chunks(100).enumerate() {
-        bag.clear();
-        for t in chunk {
-            bag.push(t, 1.0);
-        }
-        m.learn(&bag, &classes[r % 20], 1.0).unwrap();
-    }
+    let (mut m, names, classes) = synthetic_model(terms, 20);
     let mut acc = 0.0;
     let cdf: Vec<f64> = names.iter().enumerate().map(|(r, _)| { acc += 1.0 / (r as f64 + 1.0); acc }).collect();
     let mut rng = SplitMix64::new(7);

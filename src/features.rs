@@ -6,7 +6,7 @@
 pub mod interned;
 pub mod term_text;
 
-use crate::settings::VocabularyKind;
+use crate::settings::{ModelSettings, VocabularyKind};
 
 pub use interned::Interned;
 
@@ -20,6 +20,11 @@ pub enum Vocabulary {
 }
 
 impl Vocabulary {
+    /// An empty vocabulary of the kind and bounds `[model]` names.
+    pub fn from_settings(m: &ModelSettings) -> Vocabulary {
+        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets)
+    }
+
     pub fn new(kind: VocabularyKind, max: usize, buckets: usize) -> Vocabulary {
         match kind {
             VocabularyKind::Interned => Vocabulary::Interned(Interned::new(max)),

@@ -16,12 +16,11 @@ use serde_json::json;
 use tokio_util::sync::CancellationToken;
 
 use crate::cli::BenchStreamArgs;
-use crate::features::Vocabulary;
 use crate::io::kafka::config::{admin_config, consumer_config, producer_config};
 use crate::io::message::Inbound;
 use crate::metrics::Metrics;
 use crate::model::snapshot::{self, SnapshotMeta};
-use crate::model::{Model, NbParams};
+use crate::model::Model;
 use crate::runtime::model_view::ModelView;
 use crate::runtime::router::{RouteScratch, Router};
 use crate::runtime::Service;
@@ -183,14 +182,8 @@ pub(crate) fn generate_lines(n: usize, bytes: usize, seed: u64) -> Vec<Vec<u8>> 
 
 pub(crate) fn train_log_model(settings: &Settings, path: &std::path::Path) -> Result<()> {
     let analyzer = Analyzer::new(&settings.analyzer)?;
-    let m = &settings.model;
     let classes: Vec<String> = CLASSES.iter().map(|c| c.to_string()).collect();
-    let mut model = Model::new(
-        NbParams::from_settings(m),
-        settings.analyzer.clone(),
-        classes,
-        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
-    )?;
+    let mut model = Model::from_settings(&settings, classes)?;
     let mut scratch = AnalyzerScratch::default();
     let mut bag = TermBag::new();
     for (i, line) in generate_lines(4000, 120, 77).iter().enumerate() {

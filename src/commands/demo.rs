@@ -14,12 +14,11 @@ use crate::cli::DemoArgs;
 use crate::decide::DecidedBy;
 use crate::demo::report::{flag_delays, phase_figures, DriftSample, PhaseFigures, Seen};
 use crate::demo::{self, DemoConfig, Fields, Kind, Stream};
-use crate::features::Vocabulary;
 use crate::io::lines::{LineSink, LineSource};
 use crate::io::sink::Sink;
 use crate::metrics::Metrics;
 use crate::model::snapshot::{self, SnapshotMeta};
-use crate::model::{Model, NbParams};
+use crate::model::Model;
 use crate::rules::{self, BlendScratch, Decider, FieldText};
 use crate::runtime::label_log::ChannelLabelLog;
 use crate::runtime::Service;
@@ -145,15 +144,9 @@ fn prepare(stream: &Stream, args: &DemoArgs, n: usize) -> Result<StreamRun> {
         p => format!("127.0.0.1:{}", p + n as u16),
     };
     // A cold start: the model knows the classes and nothing else.
-    let m = &settings.model;
     let mut classes: Vec<String> = stream.kind.classes().iter().map(|c| c.to_string()).collect();
     classes.sort();
-    let model = Model::new(
-        NbParams::from_settings(m),
-        settings.analyzer.clone(),
-        classes,
-        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
-    )?;
+    let model = Model::from_settings(&settings, classes)?;
     let base = args.out.join(format!("{name}.base.svm"));
     snapshot::write(&base, &model, &SnapshotMeta::fresh(&model, Some(format!("{name}-cold-start"))))?;
     settings.service.model = base.display().to_string();

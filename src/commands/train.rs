@@ -30,13 +30,7 @@ fn empty_model(settings: &Settings, classes: &[String], args: &TrainArgs) -> Res
     if names.windows(2).any(|w| w[0] == w[1]) {
         return Err(bad("each class named once").into());
     }
-    let m = &settings.model;
-    let model = Model::new(
-        NbParams::from_settings(m),
-        settings.analyzer.clone(),
-        names,
-        Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
-    )?;
+    let model = Model::from_settings(settings, names)?;
     let meta = SnapshotMeta::fresh(&model, args.model_version.clone());
     let checksum = snapshot::write(&args.out, &model, &meta)?;
     eprintln!(
@@ -90,7 +84,7 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
         let mdl = match &mut model {
             Some(x) => x,
             None => {
-                let vocab = Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets);
+                let vocab = Vocabulary::from_settings(m);
                 // Counts do not depend on the parameters: build with the cheapest
                 // cache and set the real parameters (checked then) at the end.
                 let p = NbParams::multinomial(params.alpha);

@@ -8,12 +8,11 @@ use anyhow::{bail, Context, Result};
 
 use crate::cli::TrainArgs;
 use crate::error::DatasetError;
-use crate::features::Vocabulary;
 use crate::io::kafka::label_log::{end_offsets, KafkaLabelLog};
 use crate::io::label_file::FileLabelLog;
 use crate::learn::{FoldOutcome, Folder, LabelEvent, UnknownClassPolicy};
 use crate::model::snapshot::{self, LabelOffsets, SnapshotMeta};
-use crate::model::{Model, NbParams};
+use crate::model::Model;
 use crate::runtime::label_log::{LabelLog, LogEvent, LabelMsg};
 use crate::settings::Settings;
 use crate::text::Analyzer;
@@ -49,13 +48,7 @@ pub fn run(mut settings: Settings, args: &TrainArgs) -> Result<()> {
             if classes.is_empty() {
                 return Err(DatasetError::Empty { path: log.describe() }.into());
             }
-            let m = &settings.model;
-            let model = Model::new(
-                NbParams::from_settings(m),
-                settings.analyzer.clone(),
-                classes,
-                Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
-            )?;
+            let model = Model::from_settings(&settings, classes)?;
             (model, SnapshotMeta::default(), None)
         }
     };

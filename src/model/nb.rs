@@ -21,7 +21,7 @@ use std::collections::BTreeMap;
 
 use crate::error::ModelError;
 use crate::features::Vocabulary;
-use crate::settings::{AnalyzerSettings, ModelKind, PriorKind, MAX_WEIGHT, WEIGHT_QUANTUM};
+use crate::settings::{AnalyzerSettings, ModelKind, PriorKind, Settings, MAX_WEIGHT, WEIGHT_QUANTUM};
 use crate::text::TermBag;
 
 use super::params::NbParams;
@@ -68,6 +68,11 @@ pub struct LearnOutcome {
 }
 
 impl Model {
+    /// An empty model of `classes` with the parameters, analyzer and vocabulary the settings name.
+    pub fn from_settings(settings: &Settings, classes: Vec<String>) -> Result<Model, ModelError> {
+        Model::new(NbParams::from_settings(&settings.model), settings.analyzer.clone(), classes, Vocabulary::from_settings(&settings.model))
+    }
+
     pub fn new(
         params: NbParams,
         analyzer: AnalyzerSettings,

@@ -132,12 +132,11 @@ pub fn run(
         for &seed in seeds {
             let chosen = choose(train, k, n, seed);
             used += chosen.len() as f64;
-            let m = &settings.model;
             let mut model = Model::new(
                 params.clone(),
                 settings.analyzer.clone(),
                 classes.to_vec(),
-                Vocabulary::new(m.vocabulary, m.max_vocabulary, m.hash_buckets),
+                Vocabulary::from_settings(&settings.model),
             )
             .expect("classes are distinct and priors were checked");
             for &i in &chosen {
